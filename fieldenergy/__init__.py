@@ -1,0 +1,1 @@
+"""fieldenergy: stored magnetic energy, inductance and fields of air-core conductors."""

@@ -1,0 +1,39 @@
+"""Physical constants and named default tolerances; all values SI.
+
+No other module hard-codes a tolerance: each is named here with the reason for its value.
+"""
+
+from __future__ import annotations
+
+import math
+
+#: Vacuum permeability (H/m). The 2019 SI value is 1.25663706212e-6 H/m; the classical
+#: 4*pi*1e-7 differs from it by about 5.5e-10 relative, far below any tolerance here.
+#: We keep the exact classical value so that closed-form checks read cleanly.
+MU0: float = 4.0e-7 * math.pi
+
+#: mu0 / (4 pi), the prefactor of the Biot-Savart law and of Neumann's formula (H/m).
+MU0_OVER_4PI: float = 1.0e-7
+
+#: Default largest chord sagitta as a fraction of a coil's size (bounding-box diagonal).
+#: 2e-4 gives about 160 chords on a circle; with Richardson extrapolation over
+#: levels this reaches ~1e-6 relative inductance error on smooth windings.
+DEFAULT_SAGITTA_FRACTION: float = 2.0e-4
+
+#: Default largest turning angle between consecutive chords (rad). Keeps tight bends
+#: of small radius from being cut too coarsely when the sagitta rule alone would allow it.
+DEFAULT_MAX_ANGLE: float = math.radians(10.0)
+
+#: Hard cap on the number of straight segments one coil may be cut into; protects
+#: against a tolerance typed in the wrong unit (1 um instead of 1 mm).
+MAX_SEGMENTS_PER_COIL: int = 2_000_000
+
+#: Relative tolerance below which two consecutive path points count as repeated.
+REPEATED_POINT_RTOL: float = 1.0e-12
+
+#: Coils of different windings closer than this fraction of the smaller section size
+#: are reported as intersecting.
+INTERSECTION_CLEARANCE_FRACTION: float = 1.0
+
+#: The target accuracy of the default solve preset (relative, inductance).
+DEFAULT_TARGET_RELATIVE_ERROR: float = 1.0e-4
