@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import ast
 import math
+import warnings
 from collections.abc import Callable
 
 import numpy as np
@@ -88,7 +89,10 @@ def compile_expression(text: str, where: str = "expression") -> Callable[[ArrayL
     if len(text) > MAX_LENGTH:
         raise CaseError(f"expression is {len(text)} characters long; at most {MAX_LENGTH} allowed", where=where)
     try:
-        tree = ast.parse(text.strip(), mode="eval")
+        with warnings.catch_warnings():
+            # The parser warns about odd literals ("\\d", "1 is 1"); the checks below refuse them anyway.
+            warnings.simplefilter("ignore")
+            tree = ast.parse(text.strip(), mode="eval")
     except SyntaxError as exc:
         raise CaseError(f"invalid expression {text!r}: {exc.msg}", where=where) from None
     except (ValueError, MemoryError, RecursionError):
@@ -119,7 +123,12 @@ def _build(node: ast.AST, text: str, where: str, depth: int) -> Evaluator:
     if isinstance(node, ast.Constant):
         if isinstance(node.value, bool) or not isinstance(node.value, (int, float)):
             raise _refuse(f"the constant {node.value!r}", text, where)
-        value = float(node.value)
+        try:
+            value = float(node.value)
+        except OverflowError:  # an integer literal beyond the float range
+            value = math.inf
+        if not math.isfinite(value):
+            raise CaseError(f"a number in {text!r} is too large for a float (at most about 1.8e308)", where=where)
         return lambda t: np.full(t.shape, value)
     if isinstance(node, ast.Name):
         if node.id == "t":

@@ -157,6 +157,8 @@ class FilamentModel:
         Refinement level the model was built at (0 is the base; each level halves the chords).
     sagittas
         Chord sagitta used for each coil instance at this level (m).
+    coil_sections
+        The cross-section of each coil instance (a ``RoundSection`` or ``RectSection``).
     """
 
     filaments: Filaments
@@ -168,3 +170,4 @@ class FilamentModel:
     filament_offset: NDArray[np.float64]
     level: int
     sagittas: tuple[float, ...]
+    coil_sections: tuple[object, ...] = ()

@@ -17,7 +17,7 @@ from numpy.typing import NDArray
 def _vec3(value: object, name: str) -> NDArray[np.float64]:
     arr = np.array(value, dtype=np.float64).reshape(-1)
     if arr.shape != (3,):
-        raise ValueError(f"{name} must have 3 components, got shape {np.shape(value)}")
+        raise ValueError(f"{name} must have 3 components, got {arr.size}")
     arr.setflags(write=False)
     return arr
 

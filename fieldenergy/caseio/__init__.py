@@ -1,0 +1,8 @@
+"""Case files: read a TOML case folder into a :class:`~fieldenergy.model.Case`, and write one back."""
+
+from __future__ import annotations
+
+from fieldenergy.caseio._reader import read_case
+from fieldenergy.caseio._writer import write_case
+
+__all__ = ["read_case", "write_case"]

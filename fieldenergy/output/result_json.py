@@ -1,0 +1,119 @@
+"""The result of a solve as a JSON document and as a folder of files."""
+
+from __future__ import annotations
+
+import csv
+import io
+import json
+import math
+import os
+from importlib.metadata import PackageNotFoundError, version
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from fieldenergy.cautions import cautions
+from fieldenergy.model.result import Result
+from fieldenergy.output.atomic import write_folder, write_text
+
+#: What the error estimate covers, written beside it so a reader knows what it means.
+ERROR_METHOD = (
+    "Richardson extrapolation over nested chord refinements (each level halves every curved "
+    "chord; leading error order 2), plus the estimated error of the section filament grid "
+    "from its geometric mean distance"
+)
+
+
+def tool_version() -> str:
+    """The installed fieldenergy version, or ``unknown`` when run from a source tree."""
+    try:
+        return version("fieldenergy")
+    except PackageNotFoundError:
+        return "unknown"
+
+
+def _num(x: float) -> float | None:
+    return float(x) if math.isfinite(x) else None
+
+
+def result_to_dict(result: Result, source: str | None = None) -> dict[str, Any]:
+    """The JSON-ready dictionary of a result (keys are the stable contract of the result file)."""
+    opts = result.options
+    return {
+        "tool": {"name": "fieldenergy", "version": tool_version()},
+        "case": {"title": result.title, "source": source},
+        "inductance": {
+            "circuits": list(result.circuit_names),
+            "matrix_H": result.inductance.tolist(),
+            "coupling": result.coupling.tolist(),
+            "coils": list(result.coil_names),
+            "coil_circuit": [result.circuit_names[k] for k in result.coil_circuit],
+            "coil_matrix_H": result.coil_inductance.tolist(),
+        },
+        "currents_A": result.currents.tolist(),
+        "energy": {"total_J": result.energy, "aj_J": result.energy, "error_J": _num(result.energy_error)},
+        "error_estimate": {
+            "relative": _num(result.relative_error),
+            "discretisation": _num(result.discretisation_error),
+            "section": _num(result.section_error),
+            "observed_order": _num(result.observed_order),
+            "method": ERROR_METHOD,
+        },
+        "settings": {
+            "preset": opts.preset,
+            "n_levels": opts.n_levels,
+            "base_level": opts.base_level,
+            "sagitta_fraction": opts.sagitta_fraction,
+            "section_grid": list(opts.section_grid) if opts.section_grid else None,
+        },
+        "levels": [
+            {
+                "level": r.level,
+                "n_segments": r.n_segments,
+                "n_filaments": r.n_filaments,
+                "matrix_H": r.inductance.tolist(),
+                "seconds": r.seconds,
+            }
+            for r in result.levels
+        ],
+        "run_time_s": result.seconds,
+        "warnings": list(result.warnings),
+        "cautions": cautions(result.energy),
+    }
+
+
+def result_json(result: Result, source: str | None = None) -> str:
+    """The result as indented JSON text."""
+    return json.dumps(result_to_dict(result, source), indent=2) + "\n"
+
+
+def write_result_json(path: str | os.PathLike[str], result: Result, source: str | None = None) -> None:
+    """Write the result JSON atomically."""
+    write_text(path, result_json(result, source))
+
+
+def _matrix_csv(names: tuple[str, ...], matrix: np.ndarray) -> str:
+    buf = io.StringIO()
+    writer = csv.writer(buf, lineterminator="\n")
+    writer.writerow(["name_H", *names])
+    for name, row in zip(names, matrix):
+        writer.writerow([name, *(f"{v:.12g}" for v in row)])
+    return buf.getvalue()
+
+
+def write_result_folder(folder: str | os.PathLike[str], result: Result, report: str, source: str | None = None) -> None:
+    """Write ``result.json``, ``inductance.csv``, ``coil_inductance.csv`` and ``report.txt``.
+
+    The folder is assembled beside its final place and swapped in whole.
+    """
+
+    def fill(tmp: Path) -> None:
+        (tmp / "result.json").write_text(result_json(result, source), encoding="utf-8")
+        (tmp / "inductance.csv").write_text(_matrix_csv(result.circuit_names, result.inductance), encoding="utf-8")
+        (tmp / "coil_inductance.csv").write_text(
+            _matrix_csv(result.coil_names, result.coil_inductance), encoding="utf-8"
+        )
+        (tmp / "report.txt").write_text(report, encoding="utf-8")
+
+    write_folder(folder, fill)
