@@ -11,6 +11,7 @@ from dataclasses import dataclass, field
 import numpy as np
 from numpy.typing import NDArray
 
+from fieldenergy.constants import DEFAULT_MAX_ANGLE, DEFAULT_SAGITTA_FRACTION
 from fieldenergy.model.paths import Path
 from fieldenergy.model.transforms import Repeat, Transform
 
@@ -109,8 +110,8 @@ class Discretisation:
     """
 
     sagitta: float | None = None
-    sagitta_fraction: float = 2.0e-4
-    max_angle: float = 0.17453292519943295
+    sagitta_fraction: float = DEFAULT_SAGITTA_FRACTION
+    max_angle: float = DEFAULT_MAX_ANGLE
     section_grid: tuple[int, int] | None = None
 
 
