@@ -94,7 +94,7 @@ def discretise(case: Case, level: int = 0, discretisation: Discretisation | None
     for coil in case.coils:
         circuit = _circuit_of(case, coil)
         turns = _turns_of(coil)
-        layout = section_layout(coil.section, settings.section_grid, coil.name)
+        layout = section_layout(coil.section, settings.section_grid, coil.name, settings.section_refinement)
         for name, curve in coil_instances(coil):
             if name in names:
                 raise CaseError(f"coil instance name {name!r} is used twice; coil names must be unique", where=f"coil {coil.name!r}")
@@ -211,6 +211,8 @@ def _turns_of(coil: Coil) -> float:
 
 
 def _check_settings(settings: Discretisation) -> None:
+    if not (isinstance(settings.section_refinement, int) and settings.section_refinement >= 1):
+        raise DiscretisationError(f"section_refinement must be a whole number >= 1, got {settings.section_refinement!r}")
     if settings.sagitta is not None and not (math.isfinite(settings.sagitta) and settings.sagitta > 0.0):
         raise DiscretisationError(f"discretisation sagitta must be finite and > 0 m, got {settings.sagitta!r}")
     fraction = settings.sagitta_fraction

@@ -121,7 +121,9 @@ def default_section_grid(width: float, height: float) -> tuple[int, int]:
     return n_w, n_h
 
 
-def section_layout(section: Section, grid: tuple[int, int] | None = None, name: str | None = None) -> SectionLayout:
+def section_layout(
+    section: Section, grid: tuple[int, int] | None = None, name: str | None = None, refinement: int = 1
+) -> SectionLayout:
     """The filaments of a round or rectangular section.
 
     Parameters
@@ -133,6 +135,8 @@ def section_layout(section: Section, grid: tuple[int, int] | None = None, name: 
         chooses by :func:`default_section_grid`. Ignored for a round section.
     name
         Coil name, for error messages.
+    refinement
+        Multiplies both counts of the rectangular grid.
 
     Raises
     ------
@@ -155,6 +159,7 @@ def section_layout(section: Section, grid: tuple[int, int] | None = None, name: 
     w = _size(section.width, "rectangular section width", name)
     h = _size(section.height, "rectangular section height", name)
     n_w, n_h = _checked_grid(grid, name) if grid is not None else default_section_grid(w, h)
+    n_w, n_h = n_w * refinement, n_h * refinement
     cw, ch = w / n_w, h / n_h
     u = cw * (np.arange(n_w) - 0.5 * (n_w - 1))  # symmetric about the centre line to the last bit
     v = ch * (np.arange(n_h) - 0.5 * (n_h - 1))

@@ -107,12 +107,16 @@ class Discretisation:
         Filaments across a rectangular section (across the width, across the height);
         ``None`` chooses from the aspect ratio. A round section is one filament at its
         centre whose geometric mean distance carries the section's size.
+    section_refinement
+        Multiplies both counts of every rectangular grid (given or chosen); the solve uses 2
+        to estimate the error of the section grid.
     """
 
     sagitta: float | None = None
     sagitta_fraction: float = DEFAULT_SAGITTA_FRACTION
     max_angle: float = DEFAULT_MAX_ANGLE
     section_grid: tuple[int, int] | None = None
+    section_refinement: int = 1
 
 
 @dataclass(frozen=True, slots=True)
