@@ -98,9 +98,9 @@ def test_rect_pack_conserves_ampere_turns(width: float, height: float, grid: tup
     n_w, n_h = grid if grid else default_section_grid(width, height)
     assert abs(layout.shares.sum() - 1.0) < ROUNDING
     assert layout.n_filaments == n_w * n_h
-    # equal-area core radius and the sub-cells tile the section
-    cell = (width / n_w) * (height / n_h)
-    assert np.abs(math.pi * layout.radii**2 - cell).max() < ROUNDING * cell
+    # core radius of the round conductor with the cell's GMD (GMD of a disc = a e^(-1/4), Maxwell 1873)
+    cw, ch = width / n_w, height / n_h
+    assert np.abs(layout.radii * math.exp(-0.25) - rect_gmd(cw, ch)).max() < ROUNDING * max(cw, ch)
     assert np.abs(layout.offsets.mean(axis=0)).max() < ROUNDING * width
     assert abs(np.ptp(layout.offsets[:, 0]) - (width - width / n_w)) < ROUNDING * width
     model = discretise(_case(_coil(RING, RectSection(width, height), turns=37.0)), discretisation=Discretisation(section_grid=grid))

@@ -37,7 +37,9 @@ class SectionLayout:
     shares
         Fraction of the section's ampere-turns each filament carries, shape (k,); sums to 1.
     radii
-        Core radius of each filament for field evaluation, shape (k,), m.
+        Core radius of each filament for field evaluation, shape (k,), m: the radius of the
+        round conductor with the same GMD as the sub-section (GMD * e^(1/4)), so the field
+        route and the A.J route model the same conductor.
     gmd
         Geometric mean distance of each filament's sub-section from itself, shape (k,), m.
     half_width, half_height
@@ -168,7 +170,7 @@ def section_layout(
     return SectionLayout(
         offsets=np.column_stack([uu.ravel(), vv.ravel()]),
         shares=np.full(k, 1.0 / k),
-        radii=np.full(k, math.sqrt(cw * ch / math.pi)),
+        radii=np.full(k, rect_gmd(cw, ch) / ROUND_GMD_FACTOR),
         gmd=np.full(k, rect_gmd(cw, ch)),
         half_width=0.5 * w,
         half_height=0.5 * h,

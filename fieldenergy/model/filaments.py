@@ -28,7 +28,8 @@ class Filaments:
     radii
         Core radius for field evaluation, shape (n,), m: inside it the field is that of a
         conductor of uniform current density (the section's radius for a round conductor, the
-        equal-area radius of the filament's sub-section for a rectangular pack).
+        radius of the round conductor with the GMD of the filament's sub-section for a
+        rectangular pack).
     gmd
         Geometric mean distance of the filament's sub-section from itself, shape (n,), m.
         Used for the self-interaction of a filament (partial self-inductance).
