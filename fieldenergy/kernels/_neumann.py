@@ -40,6 +40,7 @@ from fieldenergy.kernels._neumann_far import (
     gauss_table,
     multipole,
     order_for,
+    parallel_integral,
     segment_geometry,
     self_integral,
 )
@@ -57,6 +58,11 @@ def _middle_or_near(geom, i, j, g, zt, nodes, wts, rel_tol, n_panel):
     hb = geom[j, 6]
     na = order_for((dc - hb) / ha, zt)
     nb = order_for((dc - ha) / hb, zt)
+    parallel = parallel_integral(
+        rx, ry, rz, geom[i, 3], geom[i, 4], geom[i, 5], geom[j, 3], geom[j, 4], geom[j, 5], ha, hb, g * g
+    )
+    if parallel >= 0.0:
+        return parallel
     if na > 0 and nb > 0:
         return gauss_product(
             rx, ry, rz, geom[i, 3], geom[i, 4], geom[i, 5], ha, geom[j, 3], geom[j, 4], geom[j, 5], hb,
@@ -133,8 +139,11 @@ def _row_mutuals(i, geom, soa, gmd, filament, zt, nodes, wts, rel_tol, n_panel, 
         dc = math.sqrt(rx * rx + ry * ry + rz * rz)
         na = order_for((dc - hb) / ha, zt)
         nb = order_for((dc - ha) / hb, zt)
+        parallel = parallel_integral(rx, ry, rz, tax, tay, taz, tbx, tby, tbz, ha, hb, g * g)
         if cos_ij == 0.0:
             row[j] = 0.0
+        elif parallel >= 0.0:
+            row[j] = MU0_OVER_4PI * cos_ij * parallel
         elif na > 0 and nb > 0:
             val = gauss_product(rx, ry, rz, tax, tay, taz, ha, tbx, tby, tbz, hb, g * g, na, nb, nodes, wts)
             row[j] = MU0_OVER_4PI * cos_ij * val
