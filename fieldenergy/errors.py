@@ -45,5 +45,25 @@ class ExportError(FieldEnergyError):
     """A result or field map cannot be written (unknown suffix, unwritable folder ...)."""
 
 
+class CompareError(FieldEnergyError, ValueError):
+    """A finite-element result cannot be compared with the reference field.
+
+    Raised for an unreadable file, a mesh without a usable vector field, degenerate cells or
+    units that do not match the case's.
+
+    Parameters
+    ----------
+    message
+        What is wrong, the value received and the value expected.
+    path
+        The result file the problem is in, if known.
+    """
+
+    def __init__(self, message: str, path: str | None = None) -> None:
+        self.message = message
+        self.path = path
+        super().__init__(f"{path}: {message}" if path else message)
+
+
 class FieldEnergyWarning(UserWarning):
     """Something in a case looks wrong but does not stop the computation (coils that touch ...)."""
