@@ -16,6 +16,7 @@ from pathlib import Path as FilePath
 from typing import TypeVar
 
 from fieldenergy.caseio._coil import read_coil
+from fieldenergy.caseio._maps import read_maps
 from fieldenergy.caseio._tables import Table, named, show
 from fieldenergy.caseio._units import ANGLE, CURRENT, LENGTH, RESISTANCE
 from fieldenergy.constants import DEFAULT_MAX_ANGLE, DEFAULT_SAGITTA_FRACTION
@@ -25,7 +26,9 @@ from fieldenergy.model.case import Case, Circuit, Coil, Discretisation
 #: The case file inside a case folder.
 CASE_FILE_NAME = "case.toml"
 
-_TOP_KEYS = {"title", "discretisation", "circuit", "coil"}
+#: ``sweep`` holds parameter sweeps; the reader accepts the key and leaves the tables to
+#: :mod:`fieldenergy.sweep` (run by ``fieldenergy batch``): a case read here has its base values.
+_TOP_KEYS = {"title", "discretisation", "circuit", "coil", "sweep", "map"}
 
 _Named = TypeVar("_Named", Circuit, Coil)
 
@@ -72,12 +75,93 @@ def read_case(path: str | os.PathLike[str]) -> Case:
     0.05
     """
     file = _locate(path)
-    case, idle = _build(_load(file), file)
+    document = _load(file)
+    if "sweep" in document:
+        warnings.warn(
+            f"{file}: the [[sweep]] tables are not applied here, so the case is read with its base values; "
+            "run 'fieldenergy batch' on its folder to solve every variant",
+            FieldEnergyWarning,
+            stacklevel=2,
+        )
+    return _checked(document, file, file.parent)
+
+
+def read_case_toml(path: str | os.PathLike[str]) -> tuple[dict[str, object], FilePath]:
+    """The parsed TOML document of a case and the case file it came from, unchecked.
+
+    Parameters
+    ----------
+    path
+        A case folder containing ``case.toml``, or a ``.toml`` case file.
+
+    Returns
+    -------
+    The document as parsed (plain dicts and lists) and the path of the case file.
+
+    Raises
+    ------
+    CaseError
+        If the case cannot be found or read, or is not valid TOML.
+
+    Examples
+    --------
+    >>> import pathlib, tempfile
+    >>> folder = pathlib.Path(tempfile.mkdtemp())
+    >>> _ = (folder / "case.toml").write_text('title = "t"')
+    >>> read_case_toml(folder)[0]
+    {'title': 't'}
+    """
+    file = _locate(path)
+    return _load(file), file
+
+
+def read_case_document(
+    document: dict[str, object], source: str | os.PathLike[str], folder: str | os.PathLike[str]
+) -> Case:
+    """Check a parsed case document and build the :class:`Case`, as :func:`read_case` does.
+
+    Parameters
+    ----------
+    document
+        The parsed TOML of a case (see :func:`read_case_toml`); it is not changed. Its
+        ``[[sweep]]`` tables, if any, are not read here (see :mod:`fieldenergy.sweep`).
+    source
+        The case file the document stands for; named in messages and kept as ``Case.source``.
+    folder
+        The case folder, against which points files are resolved.
+
+    Returns
+    -------
+    The case in SI units.
+
+    Raises
+    ------
+    CaseError
+        If anything in the document is wrong.
+
+    Warns
+    -----
+    FieldEnergyWarning
+        For each circuit that no coil is in.
+
+    Examples
+    --------
+    >>> doc = {"title": "t", "circuit": [{"name": "c", "current": 1}], "coil": [{"name": "loop", "circuit": "c",
+    ...        "section": {"shape": "round", "radius": "1 mm"}, "path": {"kind": "circle", "radius": 0.05}}]}
+    >>> read_case_document(doc, "loop.toml", ".").coils[0].path.radius
+    0.05
+    """
+    return _checked(document, FilePath(source), FilePath(folder))
+
+
+def _checked(document: dict[str, object], file: FilePath, folder: FilePath) -> Case:
+    """The case built from ``document``, warning about idle circuits."""
+    case, idle = _build(document, file, folder)
     for name in idle:
         warnings.warn(
             f"{file}, circuit {name!r}: no coil is in this circuit, so it carries no current",
             FieldEnergyWarning,
-            stacklevel=2,
+            stacklevel=3,
         )
     return case
 
@@ -124,7 +208,7 @@ def _load(file: FilePath) -> dict[str, object]:
         raise CaseError("invalid TOML: arrays or tables are nested too deeply", path=str(file)) from None
 
 
-def _build(data: dict[str, object], file: FilePath) -> tuple[Case, list[str]]:
+def _build(data: dict[str, object], file: FilePath, folder: FilePath) -> tuple[Case, list[str]]:
     """The case, and the names of circuits that no coil is in."""
     root = Table(data, str(file))
     root.check_keys(_TOP_KEYS)
@@ -132,7 +216,7 @@ def _build(data: dict[str, object], file: FilePath) -> tuple[Case, list[str]]:
     discretisation = _discretisation(root.sub("discretisation")) if "discretisation" in data else Discretisation()
     circuits = _named(root, "circuit", _circuit)
     names = [c.name for c in circuits]
-    coils = _named(root, "coil", lambda table: read_coil(table, names, file.parent))
+    coils = _named(root, "coil", lambda table: read_coil(table, names, folder))
     used = {coil.circuit for coil in coils}
     case = Case(
         title=title,
@@ -140,7 +224,8 @@ def _build(data: dict[str, object], file: FilePath) -> tuple[Case, list[str]]:
         coils=tuple(coils),
         discretisation=discretisation,
         source=str(file),
-        folder=str(file.parent),
+        folder=str(folder),
+        maps=read_maps(root, folder),
     )
     return case, [name for name in names if name not in used]
 
@@ -169,13 +254,19 @@ def _named(root: Table, key: str, read: Callable[[Table], _Named]) -> list[_Name
 
 def _circuit(table: Table) -> Circuit:
     table = named(table, "circuit")
-    table.check_keys({"name", "current", "resistance", "dump_resistance"})
+    table.check_keys({"name", "current", "resistance", "dump_resistance", "passive"})
     name = table.text("name")
     resistance = table.bounded("resistance", table.quantity("resistance", RESISTANCE, 0.0), "ohm", at_least=0.0)
     dump = table.quantity("dump_resistance", RESISTANCE, None)
     if dump is not None:
         table.bounded("dump_resistance", dump, "ohm", above=0.0)
-    return Circuit(name=name, current=table.quantity("current", CURRENT), resistance=resistance, dump_resistance=dump)
+    passive = table.boolean("passive", False)
+    current = table.quantity("current", CURRENT, 0.0) if passive else table.quantity("current", CURRENT)
+    if passive and current != 0.0:
+        raise table.error(f"a passive circuit carries no supply current: expected 0 A or no 'current', got {current:g} A", "current")
+    if passive and not resistance + (dump or 0.0) > 0.0:
+        raise table.error("a passive circuit needs a resistance > 0 ohm (a shorted ring has some), got 0 ohm", "resistance")
+    return Circuit(name=name, current=current, resistance=resistance, dump_resistance=dump, passive=passive)
 
 
 def _discretisation(table: Table) -> Discretisation:

@@ -107,6 +107,8 @@ def _circuit(circuit: Circuit) -> dict[str, object]:
     }
     if circuit.dump_resistance is not None:
         out["dump_resistance"] = float(circuit.dump_resistance)
+    if circuit.passive:
+        out["passive"] = True
     return out
 
 

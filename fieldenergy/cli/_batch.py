@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import os
 import signal
 import sys
@@ -14,8 +15,12 @@ from fieldenergy.batch import BatchSummary, ClusterAddress, run_batch
 from fieldenergy.cli import _progress
 from fieldenergy.cli._common import _positive_int, add_preset_args, options_from
 from fieldenergy.cli._tables import solve_report
+from fieldenergy.model.options import SolveOptions
 
 HELP = "solve every case folder under DIR in parallel (or on a Dask cluster), with sweeps and a summary table"
+
+#: Exit status after Ctrl-C (128 + SIGINT, as shells report it).
+_EXIT_INTERRUPTED = 130
 
 #: Longest message shown in the printed table; the summary files hold it whole.
 _MESSAGE_WIDTH = 60
@@ -29,10 +34,14 @@ def add_args(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--timeout", type=_positive_seconds, metavar="SECONDS",
                         help="time limit of one case's solve; an overrunning case is stopped and marked 'timeout'")
     parser.add_argument("--force", action="store_true", help="solve every case, even those whose result is up to date")
+    parser.add_argument("--no-field-route", dest="no_field_route", action="store_true",
+                        help="skip the field-route cross-check (the |B|^2 integral); faster, no route gap")
     parser.add_argument("--out", metavar="FOLDER", help="folder for summary.csv and summary.json (default: DIR)")
     where = parser.add_mutually_exclusive_group()
     where.add_argument("--scheduler", metavar="ADDRESS", help="solve on the Dask cluster whose scheduler is at ADDRESS")
-    where.add_argument("--scheduler-file", metavar="FILE", help="solve on the Dask cluster named in this scheduler file")
+    where.add_argument(
+        "--scheduler-file", metavar="FILE", help="solve on the Dask cluster named in this scheduler file"
+    )
 
 
 def _positive_seconds(text: str) -> float:
@@ -49,20 +58,29 @@ def run(args: argparse.Namespace) -> int:
     cluster = None
     if args.scheduler or args.scheduler_file:
         cluster = ClusterAddress(args.scheduler, args.scheduler_file)
-    with _sigterm_as_exit():
-        summary = run_batch(
-            args.folder,
-            options_from(args),
-            jobs=args.jobs,
-            timeout=args.timeout,
-            force=args.force,
-            out=args.out,
-            cluster=cluster,
-            progress=_case_progress,
-            report=solve_report,
-        )
+    try:
+        with _sigterm_as_exit():
+            summary = run_batch(
+                args.folder,
+                _options(args),
+                jobs=args.jobs,
+                timeout=args.timeout,
+                force=args.force,
+                out=args.out,
+                cluster=cluster,
+                progress=_case_progress,
+                report=solve_report,
+            )
+    except KeyboardInterrupt:
+        print("fieldenergy: batch interrupted; the results finished so far are kept", file=sys.stderr)
+        return _EXIT_INTERRUPTED
     print(summary_text(summary), end="")
     return 1 if summary.failures else 0
+
+
+def _options(args: argparse.Namespace) -> SolveOptions:
+    options = options_from(args)
+    return dataclasses.replace(options, field_route=False) if args.no_field_route else options
 
 
 def summary_text(summary: BatchSummary) -> str:
@@ -74,12 +92,13 @@ def summary_text(summary: BatchSummary) -> str:
             ",".join(r.circuits),
             "" if r.energy_J is None else f"{r.energy_J:.6e}",
             "" if r.relative_error is None else f"{r.relative_error:.1e}",
+            "" if r.route_gap is None else f"{r.route_gap:.1e}",
             "" if r.run_time_s is None else f"{r.run_time_s:.2f}",
             r.message if len(r.message) <= _MESSAGE_WIDTH else r.message[: _MESSAGE_WIDTH - 3] + "...",
         ]
         for r in summary.rows
     ]
-    lines = _aligned(["case", "status", "circuits", "energy (J)", "rel. error", "time (s)", "message"], rows)
+    lines = _aligned(["case", "status", "circuits", "energy (J)", "rel. error", "route gap", "time (s)", "message"], rows)
     counts = ", ".join(f"{n} {status}" for status, n in summary.counts().items() if n)
     lines += ["", f"{len(summary.rows)} solves: {counts}", f"Summary: {summary.csv_path} and {summary.json_path}"]
     lines += [f"Sweep plot: {p}" for p in summary.plots]
@@ -91,7 +110,7 @@ def summary_text(summary: BatchSummary) -> str:
 
 def _aligned(header: list[str], rows: list[list[str]]) -> list[str]:
     """A plain table: numbers right-aligned, text left-aligned, the last column unpadded."""
-    numeric = {3, 4, 5}
+    numeric = {3, 4, 5, 6}
     widths = [max([len(header[i]), *(len(r[i]) for r in rows)]) for i in range(len(header))]
 
     def line(cells: list[str]) -> str:
