@@ -7,6 +7,7 @@ case-file route is covered by tests/test_cli.py.
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 import numpy as np
 import pytest
@@ -31,7 +32,9 @@ from tests import analytic
 
 #: The accuracy the default preset promises against closed forms (README, SolveOptions).
 DEFAULT_TARGET = 1e-4
-FAST = SolveOptions.from_preset("fast")
+#: These tests check the A.J route; the field route is checked in tests/test_field_route.py.
+FAST = SolveOptions.from_preset("fast").with_changes(field_route=False)
+DEFAULT = SolveOptions.from_preset("default").with_changes(field_route=False)
 
 
 def _loop(name: str, circuit: str, radius: float, wire: float, z: float = 0.0, turns: float = 1.0) -> Coil:
@@ -45,7 +48,7 @@ def test_round_wire_loop_meets_default_target_and_estimate_is_honest() -> None:
     """
     case = Case("loop", (Circuit("c", 1.5),), (_loop("l", "c", 0.25, 2.5e-4),))
     ref = analytic.round_wire_loop_self_inductance(0.25, 2.5e-4)
-    default = solve(case)
+    default = solve(case, DEFAULT)
     assert abs(default.inductance[0, 0] / ref - 1) < DEFAULT_TARGET
     assert default.energy == pytest.approx(0.5 * 1.5**2 * default.inductance[0, 0], rel=1e-14)
     assert default.observed_order == pytest.approx(2.0, abs=0.15), f"observed order {default.observed_order:.3f}"
@@ -61,7 +64,7 @@ def test_coaxial_loops_mutual_against_maxwell() -> None:
         (Circuit("a", 1.0), Circuit("b", -2.0)),
         (_loop("big", "a", 0.2, 1e-4), _loop("small", "b", 0.13, 1e-4, z=0.06, turns=3)),
     )
-    r = solve(case)
+    r = solve(case, DEFAULT)
     ref = 3 * analytic.coaxial_loops_mutual(0.2, 0.13, 0.06)
     assert r.inductance[0, 1] == pytest.approx(ref, rel=DEFAULT_TARGET)
     assert r.inductance[0, 1] == r.inductance[1, 0]
@@ -82,7 +85,7 @@ def test_rectangular_loop_against_grover() -> None:
         (Circuit("c", 1.0),),
         (Coil("r", "c", RoundSection(1e-3), PolygonPath([[0, 0, 0], [0.3, 0, 0], [0.3, 0.2, 0], [0, 0.2, 0]])),),
     )
-    r = solve(case)
+    r = solve(case, DEFAULT)
     assert r.inductance[0, 0] == pytest.approx(analytic.rectangle_loop_self_inductance(0.3, 0.2, 1e-3), rel=1e-5)
 
 
@@ -98,7 +101,7 @@ def test_thin_winding_pack_against_lorenz_nagaoka() -> None:
         "solenoid",
         (Circuit("c", 1.0),),
         (Coil("s", "c", RectSection(thick, length), CirclePath(radius, [0, 0, 0], [0, 0, 1]), turns=turns),),
-        Discretisation(section_grid=(1, 40)),
+        Discretisation(section_grid=(1, 24)),
     )
     r = solve(case, FAST)
     ref = analytic.solenoid_current_sheet_inductance(radius, length, turns)
@@ -153,14 +156,15 @@ def test_rigid_motion_of_the_whole_case_changes_nothing() -> None:
     moves = (Rotate([1, 2, 3], 0.7, [0.1, 0, 0]), Translate([0.5, -0.2, 1.0]))
     moved = tuple(Coil(c.name, c.circuit, c.section, c.path, turns=c.turns, transforms=moves) for c in coils)
     circuits = (Circuit("p", 1.0), Circuit("s", 1.0))
-    r1 = solve(Case("a", circuits, coils), FAST)
-    r2 = solve(Case("b", circuits, moved), FAST)
+    grid = Discretisation(section_grid=(2, 2))
+    r1 = solve(Case("a", circuits, coils, grid), FAST)
+    r2 = solve(Case("b", circuits, moved, grid), FAST)
     np.testing.assert_allclose(r2.inductance, r1.inductance, rtol=1e-9, atol=1e-9 * r1.inductance[0, 0])
 
 
 def test_result_carries_settings_and_levels() -> None:
     case = Case("loop", (Circuit("c", 1.0),), (_loop("l", "c", 0.1, 1e-3),))
-    r = solve(case, SolveOptions.from_preset("fine"))
+    r = solve(case, replace(SolveOptions.from_preset("fine"), field_route=False))
     assert r.options.preset == "fine" and len(r.levels) == 4
     counts = [lv.n_segments for lv in r.levels]
     assert counts == [counts[0] * 2**k for k in range(4)], "each level halves every curved chord"

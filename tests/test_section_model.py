@@ -14,7 +14,9 @@ from fieldenergy.model.options import SolveOptions
 from fieldenergy.run import solve
 from fieldenergy.section_model import gmd_correction, grid_log_gmd
 
-FAST = SolveOptions.from_preset("fast")
+#: These tests check the A.J route; the field route is checked in tests/test_field_route.py.
+FAST = SolveOptions.from_preset("fast").with_changes(field_route=False)
+DEFAULT = SolveOptions.from_preset("default").with_changes(field_route=False)
 
 
 def _ring(section: object, grid: tuple[int, int] | None = None) -> Case:
@@ -42,9 +44,9 @@ def test_round_sections_need_no_correction() -> None:
 
 
 def test_correction_makes_a_coarse_grid_agree_with_a_fine_one() -> None:
-    """Rect pack on a ring: grid 2x2 corrected vs 8x8 corrected, far closer than uncorrected."""
+    """Rect pack on a ring: grid 2x2 corrected vs 6x6 corrected, far closer than uncorrected."""
     section = RectSection(0.024, 0.016)
-    coarse, fine = discretise(_ring(section, (2, 2))), discretise(_ring(section, (8, 8)))
+    coarse, fine = discretise(_ring(section, (2, 2))), discretise(_ring(section, (6, 6)))
     from fieldenergy.energy import grouped_inductance
 
     def self_l(model: object) -> float:

@@ -20,7 +20,7 @@ def terminal_progress(description: str, total: int) -> Iterator[Callable[[int], 
         return
     from tqdm import tqdm
 
-    bar = tqdm(total=total, desc=description, unit="seg", unit_scale=True, leave=False, file=sys.stderr)
+    bar = tqdm(total=total, desc=description, unit="", unit_scale=True, leave=False, file=sys.stderr)
     done = 0
 
     def update(n_done: int) -> None:

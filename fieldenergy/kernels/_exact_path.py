@@ -133,7 +133,7 @@ def _element(px, py, pz, e, nodes, tang, ends, sag, radii, xg, wg, bary, ratio, 
                           tang[e, i, 0], tang[e, i, 1], tang[e, i, 2], wg[i], acc)
         return
     if d * max_sub >= ratio * h and d >= radii[e]:
-        k = int(math.ceil(ratio * h / d))
+        k = math.ceil(ratio * h / d)
         for j in range(k):
             for i in range(q):
                 s = -1.0 + (2.0 * j + xg[i] + 1.0) / k

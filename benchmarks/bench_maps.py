@@ -1,0 +1,132 @@
+"""Field maps at scale: the fast multipole evaluation against direct summation, one run.
+
+Run from the repository root (needs fmm3dpy)::
+
+    python benchmarks/bench_maps.py [--targets 1000000] [--loops 100] [--chords 1000]
+
+The conductors are a stack of ``--loops`` circular loops (radius 0.1 m, round 0.5 mm wire,
+invented), each cut into about ``--chords`` curved elements, so the model has loops x chords
+elements. Prints:
+
+1. the crossover: direct and fast times for growing square problems (targets = elements)
+   and the first size where fast wins;
+2. the large map: ``--targets`` random points in a box around the stack (some next to the
+   wires), evaluated by the fast method; its time, the peak resident memory, and the largest
+   relative error against direct summation on a random sample of targets, split into those
+   farther than 5 mm from every wire and those closer in.
+"""
+
+from __future__ import annotations
+
+import argparse
+import resource
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
+
+from fieldenergy.discretise import discretise
+from fieldenergy.fastfield import fast_field
+from fieldenergy.maps.exact_path import exact_elements, exact_field
+from fieldenergy.model import (
+    Case,
+    CirclePath,
+    Circuit,
+    Coil,
+    Discretisation,
+    RoundSection,
+)
+
+RADIUS = 0.1
+PITCH = 0.004
+WIRE = 0.5e-3
+SAMPLE = 2000
+NEAR = 5e-3
+
+
+def stack_case(n_loops: int, n_chords: int) -> Case:
+    coils = tuple(Coil(f"l{k}", "c", RoundSection(WIRE), CirclePath(RADIUS, [0, 0, k * PITCH], [0, 0, 1]))
+                  for k in range(n_loops))
+    sagitta = RADIUS * (1.0 - np.cos(np.pi / n_chords))
+    return Case("stack", (Circuit("c", 10.0),), coils, Discretisation(sagitta=float(sagitta), max_angle=1.0))
+
+
+def targets(n: int, n_loops: int, rng: np.random.Generator) -> np.ndarray:
+    """Random points in a box around the stack; a tenth of them within 5 mm of a wire."""
+    height = n_loops * PITCH
+    pts = rng.uniform([-0.15, -0.15, -0.05], [0.15, 0.15, height + 0.05], (n, 3))
+    k = n // 10
+    angle, phase = rng.uniform(0, 2 * np.pi, (2, k))
+    gap = rng.uniform(WIRE, NEAR, k)
+    loop = rng.integers(0, n_loops, k)
+    rho = RADIUS + gap * np.cos(phase)
+    pts[:k] = np.column_stack([rho * np.cos(angle), rho * np.sin(angle), loop * PITCH + gap * np.sin(phase)])
+    return pts
+
+
+def wire_distance(pts: np.ndarray, n_loops: int) -> np.ndarray:
+    rho = np.hypot(pts[:, 0], pts[:, 1])
+    z = np.clip(np.round(pts[:, 2] / PITCH), 0, n_loops - 1) * PITCH
+    return np.hypot(rho - RADIUS, pts[:, 2] - z)
+
+
+def timed(run, *args):  # type: ignore[no-untyped-def]
+    t0 = time.perf_counter()
+    out = run(*args)
+    return time.perf_counter() - t0, out
+
+
+def crossover(rng: np.random.Generator) -> None:
+    print("size (targets = elements)   direct s   fast s   fast/direct")
+    found = None
+    for n_loops, n_chords in ((4, 250), (8, 500), (16, 1000), (32, 1000)):
+        case = stack_case(n_loops, n_chords)
+        el = exact_elements(case, discretise(case))
+        pts = targets(len(el.nodes), n_loops, rng)
+        t_direct, _ = timed(exact_field, pts, el)
+        t_fast, _ = timed(fast_field, pts, el)
+        print(f"{len(el.nodes):>24d} {t_direct:10.3f} {t_fast:8.3f} {t_fast / t_direct:12.3f}")
+        if found is None and t_fast < t_direct:
+            found = len(el.nodes)
+    print(f"crossover: fast beats direct from about {found} targets x {found} elements" if found else
+          "crossover: fast did not beat direct in this range")
+
+
+def large_map(n_targets: int, n_loops: int, n_chords: int, rng: np.random.Generator) -> None:
+    case = stack_case(n_loops, n_chords)
+    t_el, el = timed(lambda: exact_elements(case, discretise(case)))
+    pts = targets(n_targets, n_loops, rng)
+    t_fast, (b, _) = timed(lambda: fast_field(pts, el))
+    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 2**20
+    sample = rng.choice(n_targets, SAMPLE, replace=False)
+    t_direct, (b_ref, _) = timed(lambda: exact_field(pts[sample], el))
+    err = np.linalg.norm(b[sample] - b_ref, axis=1) / np.linalg.norm(b_ref, axis=1)
+    far = wire_distance(pts[sample], n_loops) > NEAR
+    print(f"\n{n_targets} targets from {len(el.nodes)} elements: elements built in {t_el:.1f} s, "
+          f"fast map in {t_fast:.1f} s, peak memory {peak:.2f} GiB")
+    print(f"direct on {SAMPLE} sampled targets: {t_direct:.1f} s, so the whole map directly would take about "
+          f"{t_direct * n_targets / SAMPLE:.0f} s ({t_direct * n_targets / SAMPLE / t_fast:.0f} x the fast time)")
+    print(f"largest relative error of B, fast vs direct: {err[far].max():.2e} farther than 5 mm from the wires "
+          f"({far.sum()} targets), {err[~far].max():.2e} closer in ({(~far).sum()} targets)")
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--targets", type=int, default=1_000_000)
+    parser.add_argument("--loops", type=int, default=100)
+    parser.add_argument("--chords", type=int, default=1000)
+    parser.add_argument("--skip-crossover", action="store_true")
+    args = parser.parse_args()
+    rng = np.random.default_rng(0)
+    warm = stack_case(1, 100)  # compile the kernels before timing anything
+    fast_field(targets(100, 1, rng), exact_elements(warm, discretise(warm)))
+    if not args.skip_crossover:
+        crossover(rng)
+    large_map(args.targets, args.loops, args.chords, rng)
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,1 @@
+"""Field maps: evaluation grids, quantities, exact-path field evaluation and export."""

@@ -1,0 +1,187 @@
+"""Evaluate a case's field maps: points, exact-path field, quantities and an error estimate."""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from contextlib import AbstractContextManager
+from dataclasses import dataclass
+
+import numpy as np
+from numpy.typing import NDArray
+
+from fieldenergy.discretise import discretise
+from fieldenergy.maps.exact_path import (
+    MAX_SUBDIVISIONS,
+    ExactElements,
+    exact_elements,
+    exact_field,
+)
+from fieldenergy.maps.grids import map_points, reference_point
+from fieldenergy.maps.quantities import map_quantities
+from fieldenergy.model import Case, FilamentModel
+from fieldenergy.model.maps import MapSpec
+
+#: The error estimate compares the field with a second evaluation at this Gauss order (and
+#: half the sub-chords on the conductor); the difference bounds the error of the finer one.
+ESTIMATE_ORDER: int = 6
+
+#: The error estimate is evaluated on at most this many points of a map (a seeded sample of
+#: larger maps), since it costs about as much as the map itself.
+ESTIMATE_POINTS: int = 4096
+
+#: Automatic choice: the fast multipole method is used when fmm3dpy is installed and the
+#: number of target x element pairs exceeds this. Measured with benchmarks/bench_maps.py
+#: (2 shared cores, fmm3dpy 2.1 wheel): fast took 2.5 and 1.1 times the direct time at
+#: 2.6e8 and 1.0e9 pairs, the ratio falling as pairs^-0.5 (direct is quadratic, fast
+#: linear): the two meet near 1.2e9 pairs.
+FAST_MIN_PAIRS: float = 2.0e9
+
+#: Ways to evaluate a map: ``auto`` chooses by size, ``direct`` sums every pair, ``fast`` uses
+#: the fast multipole method (needs fmm3dpy).
+METHODS: tuple[str, ...] = ("auto", "direct", "fast")
+
+#: |B| below this fraction of the map's largest |B| counts as zero for relative errors.
+RELATIVE_FLOOR: float = 1.0e-9
+
+Array = NDArray[np.float64]
+ProgressFactory = Callable[[str, int], AbstractContextManager[Callable[[int], None]]]
+
+
+@dataclass(frozen=True, slots=True, eq=False)
+class MapResult:
+    """The field on one map.
+
+    Attributes
+    ----------
+    spec
+        The map.
+    points
+        Evaluation points, shape (m, 3), m (first grid axis fastest).
+    shape
+        Points along each grid axis (box: 3, plane: 2, line and points: 1).
+    b, a
+        B (T) and A (T m), shape (m, 3).
+    values
+        The map's quantities by name (see :data:`fieldenergy.model.maps.MAP_QUANTITIES`).
+    b_reference
+        B at the reference point (T), shape (3,).
+    error_index, error
+        Points where the error of B was estimated and the estimate there (T).
+    """
+
+    spec: MapSpec
+    points: Array
+    shape: tuple[int, ...]
+    b: Array
+    a: Array
+    values: dict[str, Array]
+    b_reference: Array
+    error_index: NDArray[np.int64]
+    error: Array
+
+    @property
+    def relative_error(self) -> float:
+        """Largest estimated error of B relative to the local |B| (floored at 1e-9 of the largest)."""
+        if len(self.error) == 0:
+            return 0.0
+        mag = np.linalg.norm(self.b[self.error_index], axis=1)
+        floor = max(float(np.linalg.norm(self.b, axis=1).max()) * RELATIVE_FLOOR, np.finfo(float).tiny)
+        return float(np.max(self.error / np.maximum(mag, floor)))
+
+
+def evaluate_map(
+    case: Case,
+    spec: MapSpec,
+    *,
+    model: FilamentModel | None = None,
+    method: str = "auto",
+    progress: ProgressFactory | None = None,
+) -> MapResult:
+    """B, A and the requested quantities on a map, with an estimate of the error of B.
+
+    The field is integrated along the exact conductor paths (see
+    :mod:`fieldenergy.maps.exact_path`); the error is estimated on up to
+    :data:`ESTIMATE_POINTS` points as the difference from a lower-order evaluation.
+
+    Parameters
+    ----------
+    case
+        The case (its circuit currents drive the field).
+    spec
+        The map.
+    model
+        The discretised case (default: ``discretise(case)``).
+    method
+        One of :data:`METHODS`.
+    progress
+        ``progress(description, total)`` returning a context manager that yields an
+        ``update(n_done)`` callable (see :mod:`fieldenergy.cli._progress`).
+
+    Examples
+    --------
+    >>> from fieldenergy.model import Case, Circuit, Coil, CirclePath, RoundSection
+    >>> from fieldenergy.model.maps import LineMap
+    >>> coil = Coil("ring", "c", RoundSection(1e-3), CirclePath(0.1, [0, 0, 0], [0, 0, 1]))
+    >>> case = Case("demo", (Circuit("c", 1.0),), (coil,))
+    >>> res = evaluate_map(case, LineMap("axis", [0, 0, -0.1], [0, 0, 0.1], 3))
+    >>> round(float(res.b[1, 2]) * 1e6, 9)    # mu0 I / (2 R) = 2 pi uT
+    6.283185307
+    """
+    model = discretise(case) if model is None else model
+    points, shape = map_points(spec)
+    elements = exact_elements(case, model)
+    fast = _use_fast(method, len(points), elements)
+    b, a = _field(points, elements, f"map {spec.name!r}", progress, fast=fast)
+    ref = np.asarray(reference_point(spec), dtype=np.float64)[None, :]
+    b_ref = exact_field(ref, elements)[0][0]
+    index = _estimate_index(len(points))
+    low = exact_elements(case, model, ESTIMATE_ORDER)
+    b_low = _field(points[index], low, f"map {spec.name!r}, error estimate", progress, MAX_SUBDIVISIONS // 2)[0]
+    error = np.linalg.norm(b[index] - b_low, axis=1)
+    values = map_quantities(spec.quantities, b, a, b_ref)
+    return MapResult(spec, points, shape, b, a, values, b_ref, index, error)
+
+
+def evaluate_maps(case: Case, *, method: str = "auto", progress: ProgressFactory | None = None) -> list[MapResult]:
+    """Every map the case declares, in order (one discretisation shared by all)."""
+    if not case.maps:
+        return []
+    model = discretise(case)
+    return [evaluate_map(case, spec, model=model, method=method, progress=progress) for spec in case.maps]
+
+
+def _use_fast(method: str, n_points: int, elements: ExactElements) -> bool:
+    """Whether to use the fast multipole method (see :data:`METHODS`)."""
+    from fieldenergy.fastfield import has_fmm
+
+    if method not in METHODS:
+        raise ValueError(f"unknown map method {method!r}; known: {', '.join(METHODS)}")
+    if method == "auto":
+        return float(n_points) * len(elements.nodes) > FAST_MIN_PAIRS and has_fmm()
+    return method == "fast"
+
+
+def _field(
+    points: Array, elements: ExactElements, label: str, progress: ProgressFactory | None,
+    max_subdivisions: int = MAX_SUBDIVISIONS, fast: bool = False,
+) -> tuple[Array, Array]:
+    from fieldenergy.fastfield import fast_field
+
+    def run(update: Callable[[int], None] | None) -> tuple[Array, Array]:
+        if fast:
+            return fast_field(points, elements, progress=update)
+        return exact_field(points, elements, max_subdivisions=max_subdivisions, progress=update)
+
+    if progress is None:
+        return run(None)
+    with progress(label, len(points)) as update:
+        return run(update)
+
+
+def _estimate_index(n_points: int) -> NDArray[np.int64]:
+    """All points of a small map; a seeded sample (sorted) of a large one."""
+    if n_points <= ESTIMATE_POINTS:
+        return np.arange(n_points, dtype=np.int64)
+    rng = np.random.default_rng(0)
+    return np.sort(rng.choice(n_points, ESTIMATE_POINTS, replace=False)).astype(np.int64)
+

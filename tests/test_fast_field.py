@@ -1,0 +1,124 @@
+"""The fast multipole field against direct summation on random conductors and targets."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from fieldenergy.discretise import discretise
+from fieldenergy.fastfield import FastFieldUnavailable, fast_field, point_sources
+from fieldenergy.maps.evaluate import evaluate_map
+from fieldenergy.maps.exact_path import exact_elements, exact_field
+from fieldenergy.model import (
+    Case,
+    CirclePath,
+    Circuit,
+    Coil,
+    Discretisation,
+    PolygonPath,
+    RectSection,
+    RoundSection,
+)
+from fieldenergy.model.maps import PointsMap
+
+fmm3dpy = pytest.importorskip("fmm3dpy")
+
+#: The requested accuracy of maps: 1e-6 of |B| (homogeneity in ppm), met with margin by the
+#: multipole tolerance (1e-10) and the five-point source rule beyond two element sizes.
+FAST_RTOL = 1e-6
+
+
+def _random_case(seed: int) -> Case:
+    """Invented conductors: tilted loops with round and rectangular sections, and a polygon."""
+    rng = np.random.default_rng(seed)
+    coils = []
+    for k in range(3):
+        normal = np.array([0.0, 0.0, 1.0]) + 0.2 * rng.normal(size=3)  # tilted by about 0.2 rad
+        section = RoundSection(1e-3) if k % 2 else RectSection(6e-3, 4e-3)
+        centre = rng.uniform(-0.02, 0.02, 3) + [0.0, 0.0, 0.06 * k]  # stacked: the loops never touch
+        path = CirclePath(float(rng.uniform(0.05, 0.12)), centre, normal)
+        coils.append(Coil(f"loop{k}", "a" if k < 2 else "b", section, path, turns=float(rng.integers(1, 20))))
+    square = PolygonPath(np.array([[0.2, 0, 0], [0.3, 0, 0], [0.3, 0.1, 0.02], [0.2, 0.1, 0]]))
+    coils.append(Coil("square", "b", RoundSection(2e-3), square, turns=5.0))
+    coarse = Discretisation(sagitta_fraction=1e-3, section_grid=(2, 2))  # few elements: a quick test
+    return Case("random", (Circuit("a", 3.0), Circuit("b", -7.0)), tuple(coils), coarse)
+
+
+def _targets(case: Case, rng: np.random.Generator, n: int) -> np.ndarray:
+    """Random targets around the conductors; a third of them within 1 cm of a filament."""
+    fil = discretise(case).filaments
+    pts = rng.uniform(-0.2, 0.35, (n, 3))
+    k = n // 3
+    pick = rng.integers(0, fil.n_segments, k)
+    f = rng.uniform(0, 1, (k, 1))
+    on_wire = fil.starts[pick] + f * (fil.ends[pick] - fil.starts[pick])
+    offset = rng.normal(size=(k, 3))
+    offset *= (rng.uniform(4e-3, 1e-2, k) / np.linalg.norm(offset, axis=1))[:, None]
+    pts[:k] = on_wire + offset
+    return pts
+
+
+@pytest.mark.parametrize("seed", [0, 1])
+def test_fast_matches_direct_on_random_cases(seed: int) -> None:
+    case = _random_case(seed)
+    elements = exact_elements(case, discretise(case))
+    pts = _targets(case, np.random.default_rng(seed + 10), 1500)
+    b_direct, a_direct = exact_field(pts, elements)
+    b_fast, a_fast = fast_field(pts, elements)
+    err_b = np.linalg.norm(b_fast - b_direct, axis=1) / np.linalg.norm(b_direct, axis=1)
+    err_a = np.linalg.norm(a_fast - a_direct, axis=1) / np.linalg.norm(a_direct, axis=1)
+    assert err_b.max() < FAST_RTOL, f"B: largest relative error {err_b.max():.2e}"
+    assert err_a.max() < FAST_RTOL, f"A: largest relative error {err_a.max():.2e}"
+
+
+def test_points_inside_a_core_and_near_corners_are_corrected() -> None:
+    """Targets inside the 2 mm core of the polygon's wire and at its corners."""
+    case = _random_case(3)
+    elements = exact_elements(case, discretise(case))
+    corners = np.array([[0.2, 0, 0], [0.3, 0, 0], [0.3, 0.1, 0.02], [0.2, 0.1, 0]])
+    pts = np.vstack([corners + [0.0005, 0.0003, 0.0], corners + [0.0, 0.0, 0.005], [[0.25, 0.0, 0.001]]])
+    b_direct, _ = exact_field(pts, elements)
+    b_fast, _ = fast_field(pts, elements)
+    err = np.linalg.norm(b_fast - b_direct, axis=1) / np.linalg.norm(b_direct, axis=1)
+    assert err.max() < FAST_RTOL, f"largest relative error {err.max():.2e}"
+
+
+def test_point_sources_carry_each_element_current_moment() -> None:
+    """The source rule carries each element's whole current moment I (end - start)."""
+    case = _random_case(0)
+    el = exact_elements(case, discretise(case))
+    _, chg = point_sources(el, 5)
+    moment = el.ends[:, 3:] - el.ends[:, :3]
+    expected = moment * el.tang[:, 0, 3:4]
+    #: sums of five terms of the element's size: rounding of a few ulps of the largest moment
+    np.testing.assert_allclose(chg.sum(axis=1), expected, rtol=0, atol=1e-13 * np.abs(expected).max())
+
+
+def test_map_method_override_and_missing_fmm(monkeypatch: pytest.MonkeyPatch) -> None:
+    case = _random_case(0)
+    spec = PointsMap("p", _targets(case, np.random.default_rng(5), 100), ("B",))
+    direct = evaluate_map(case, spec, method="direct")
+    fast = evaluate_map(case, spec, method="fast")
+    err = np.linalg.norm(fast.b - direct.b, axis=1) / np.linalg.norm(direct.b, axis=1)
+    assert err.max() < FAST_RTOL, f"largest relative error {err.max():.2e}"
+    import sys
+
+    monkeypatch.setitem(sys.modules, "fmm3dpy", None)
+    with pytest.raises(FastFieldUnavailable, match="pip install"):
+        evaluate_map(case, spec, method="fast")
+
+
+def test_chunked_sums_equal_one_call(monkeypatch: pytest.MonkeyPatch) -> None:
+    """Cutting targets and sources into chunks changes only the rounding of the sums."""
+    from fieldenergy import fastfield
+
+    case = _random_case(1)
+    elements = exact_elements(case, discretise(case))
+    pts = _targets(case, np.random.default_rng(7), 400)
+    b_one, a_one = fast_field(pts, elements)
+    monkeypatch.setattr(fastfield, "FAST_CHUNK", 150)
+    monkeypatch.setattr(fastfield, "FAST_SOURCE_CHUNK", 1000)
+    b_chunked, a_chunked = fast_field(pts, elements)
+    #: each chunk's multipole sum is accurate to its eps (1e-10), far below the map tolerance
+    np.testing.assert_allclose(b_chunked, b_one, rtol=0, atol=FAST_RTOL * 1e-2 * np.abs(b_one).max())
+    np.testing.assert_allclose(a_chunked, a_one, rtol=0, atol=FAST_RTOL * 1e-2 * np.abs(a_one).max())
