@@ -13,10 +13,10 @@ import sys
 import warnings
 from collections.abc import Sequence
 
-from fieldenergy.cli import _batch, _check, _map, _solve
+from fieldenergy.cli import _batch, _check, _compare, _map, _solve
 from fieldenergy.errors import FieldEnergyError
 
-COMMANDS = {"check": _check, "solve": _solve, "map": _map, "batch": _batch}
+COMMANDS = {"check": _check, "solve": _solve, "map": _map, "batch": _batch, "compare": _compare}
 
 #: Exit status for bad input.
 EXIT_USER_ERROR = 2

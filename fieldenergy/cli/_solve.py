@@ -4,11 +4,15 @@ from __future__ import annotations
 
 import argparse
 import warnings
+from dataclasses import replace
+from functools import partial
 from pathlib import Path
 
 from fieldenergy.cli._common import add_case_arg, add_preset_args, case_folder, load, options_from
 from fieldenergy.cli._progress import terminal_progress
 from fieldenergy.cli._tables import solve_report
+from fieldenergy.mechanics import mechanics
+from fieldenergy.output.mechanics_out import mechanics_document, write_mechanics_files
 from fieldenergy.output.result_json import write_result_folder, write_result_json
 from fieldenergy.run import solve
 
@@ -21,19 +25,38 @@ def add_args(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--json", metavar="FILE", help="also write the result as JSON to FILE")
     parser.add_argument("--out", metavar="DIR", help="result folder (default: CASE/result)")
     parser.add_argument("--no-out", action="store_true", help="do not write the result folder")
+    parser.add_argument(
+        "--no-field-route", action="store_true", help="skip the 1/(2 mu0) integral of |B|^2 cross-check"
+    )
+    parser.add_argument(
+        "--no-mechanics", action="store_true", help="skip forces, peak conductor field and discharge"
+    )
+    parser.add_argument(
+        "--discharge", action="store_true", help="fail (exit 2) if the circuits cannot discharge, instead of a note"
+    )
+    parser.add_argument(
+        "--torque-about", nargs=3, type=float, metavar=("X", "Y", "Z"), help="point (m) for torques (default: each coil's centroid)"
+    )
 
 
 def run(args: argparse.Namespace) -> int:
     options = options_from(args)
+    if args.no_field_route:
+        options = replace(options, field_route=False)  # a check skipped, not a custom preset
     case = load(args)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")  # solve() records them in the result; shown in the report
         result = solve(case, options, progress=terminal_progress)
-    report = solve_report(result, case.source)
+        mech = None
+        if not args.no_mechanics:
+            mech = mechanics(case, result.inductance, options, about=args.torque_about, require_discharge=args.discharge)
+    extra = None if mech is None else mechanics_document(mech)
+    more = None if mech is None else partial(write_mechanics_files, mech=mech)
+    report = solve_report(result, case.source, mech)
     if not args.no_out:
         folder = Path(args.out) if args.out else case_folder(case, args) / "result"
-        write_result_folder(folder, result, report, case.source)
+        write_result_folder(folder, result, report, case.source, extra, more_files=more)
     if args.json:
-        write_result_json(args.json, result, case.source)
+        write_result_json(args.json, result, case.source, extra)
     print(report, end="")
     return 0

@@ -4,12 +4,17 @@ from __future__ import annotations
 
 import math
 import textwrap
+from typing import TYPE_CHECKING
 
 import numpy as np
 
 from fieldenergy.cautions import cautions
 from fieldenergy.describe import CaseSummary
+from fieldenergy.energy.route_check import ROUTE_GAP_TOLERANCE
 from fieldenergy.model.result import Result
+
+if TYPE_CHECKING:
+    from fieldenergy.mechanics import Mechanics
 
 
 def _table(header: list[str], rows: list[list[str]]) -> list[str]:
@@ -31,8 +36,8 @@ def _si(value: float, unit: str) -> str:
     return f"{value / 10**exp3:.6g} {prefixes[exp3]}{unit}"
 
 
-def solve_report(result: Result, source: str | None) -> str:
-    """The human-readable report of a solve."""
+def solve_report(result: Result, source: str | None, mechanics: Mechanics | None = None) -> str:
+    """The human-readable report of a solve, with forces and discharge when given."""
     names = list(result.circuit_names)
     lines = [f"Case: {result.title}"]
     if source:
@@ -55,6 +60,7 @@ def solve_report(result: Result, source: str | None) -> str:
     lines += [
         "",
         f"Stored energy (1/2 I^T L I): {result.energy:.8e} J  (+/- {result.energy_error:.2e} J)",
+        *_route_lines(result),
         f"Estimated relative error: {result.relative_error:.2e}  "
         f"(chords {result.discretisation_error:.2e}, section filaments {result.section_error:.2e}; "
         f"observed order {result.observed_order:.2f})",
@@ -64,10 +70,69 @@ def solve_report(result: Result, source: str | None) -> str:
     ]
     if result.warnings:
         lines += ["", "Warnings:"] + [f"  - {w}" for w in result.warnings]
+    if mechanics is not None:
+        lines += mechanics_lines(mechanics)
     lines += ["", "CAUTION:"]
-    for c in cautions(result.energy):
+    for c in cautions(result.energy) + (mechanics.cautions() if mechanics is not None else []):
         lines += textwrap.wrap(c, width=88, initial_indent="  ", subsequent_indent="  ")
     return "\n".join(lines) + "\n"
+
+
+def mechanics_lines(mech: Mechanics) -> list[str]:
+    """Report lines: the coils table (force, torque, peak field) and the discharge table."""
+    f, tq = mech.forces.force, mech.forces.torque
+    # components below 1e-12 of the largest force are round-off of symmetric sums: shown as 0
+    f = np.where(np.abs(f) > 1e-12 * float(np.max(np.abs(f), initial=0.0)), f, 0.0)
+    about = mech.forces.about
+    if mech.about_given and len(about):
+        where = "(" + ", ".join(f"{v:.4g}" for v in about[0]) + ") m"
+    else:
+        where = "each coil's centroid"
+    lines = ["", f"Coils: forces from the other coils, torque about {where} (level {mech.model.level})"]
+    lines += _table(
+        ["coil", "Fx (N)", "Fy (N)", "Fz (N)", "|torque| (N m)", "peak |B| on conductor"],
+        [
+            [name, *(f"{v:.5g}" for v in f[k]), f"{np.linalg.norm(tq[k]):.5g}", _si(float(mech.peak.value[k]), "T")]
+            for k, name in enumerate(mech.coil_names)
+        ],
+    )
+    dist = mech.distribution
+    if dist.peak_coil >= 0:
+        where = ", ".join(f"{v:.4g}" for v in dist.peak_location)
+        lines.append(f"Largest force per unit length: {dist.peak:.4g} N/m on {mech.coil_names[dist.peak_coil]} at ({where}) m")
+    d = mech.discharge
+    if d is None:
+        return lines + ["", f"Discharge: {mech.discharge_note}"]
+    lines += ["", f"Discharge from {d.initial_energy:.6g} J; time constants " + ", ".join(_si(float(x), "s") for x in d.time_constants)]
+    lines += _table(
+        ["circuit", "resistance", "peak voltage", "energy", "peak current", "time to 1 %"],
+        [
+            [
+                name + (" (passive)" if d.passive[k] else ""),
+                _si(float(d.resistance[k]), "Ohm"),
+                _si(float(d.peak_voltage[k]), "V"),
+                _si(float(d.energy_deposited[k]), "J"),
+                _si(float(d.peak_current[k]), "A"),
+                _si(float(d.time_to_1pct[k]), "s"),
+            ]
+            for k, name in enumerate(d.circuits)
+        ],
+    )
+    return lines
+
+
+def _route_lines(result: Result) -> list[str]:
+    """Both energy routes, their gap (flagged above the tolerance) and the tail share."""
+    if result.field_inductance is None:
+        return ["Field route (1/(2 mu0) integral of |B|^2): skipped"]
+    share = result.tail_energy / result.field_energy if result.field_energy else math.nan
+    flag = f"  ** above {ROUTE_GAP_TOLERANCE:.0e}: {result.route_gap_hint}" if result.route_gap_flag else ""
+    return [
+        f"  A.J route:   {result.energy:.8e} J",
+        f"  field route: {result.field_energy:.8e} J  (+/- {result.field_energy_error:.2e} J; "
+        f"outside the box {share:.2%}; {result.field_seconds:.2f} s)",
+        f"  route gap:   {result.route_gap:.2e} (energy), {result.route_gap_matrix:.2e} (matrix entries){flag}",
+    ]
 
 
 def check_report(summary: CaseSummary, warnings: list[str], vtk_path: str | None) -> str:

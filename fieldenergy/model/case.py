@@ -12,6 +12,7 @@ import numpy as np
 from numpy.typing import NDArray
 
 from fieldenergy.constants import DEFAULT_MAX_ANGLE, DEFAULT_SAGITTA_FRACTION
+from fieldenergy.model.maps import MapSpec
 from fieldenergy.model.paths import Path
 from fieldenergy.model.transforms import Repeat, Transform
 
@@ -21,13 +22,16 @@ class Circuit:
     """A circuit: coils in series carrying one terminal ``current`` (A).
 
     ``resistance`` is its series resistance (ohm); ``dump_resistance`` a resistor switched in
-    at the start of a discharge (ohm), if any.
+    at the start of a discharge (ohm), if any. A ``passive`` circuit is a closed loop with no
+    supply (a shorted ring, a support cylinder modelled as loops): it carries zero current
+    until a discharge induces one, and it needs a resistance > 0.
     """
 
     name: str
     current: float
     resistance: float = 0.0
     dump_resistance: float | None = None
+    passive: bool = False
 
 
 @dataclass(frozen=True, slots=True)
@@ -123,7 +127,8 @@ class Discretisation:
 class Case:
     """A complete case: the circuits, their coils and the discretisation settings.
 
-    ``source`` is the case file it was read from, if any; ``folder`` the case folder.
+    ``source`` is the case file it was read from, if any; ``folder`` the case folder;
+    ``maps`` the field maps it declares (see :mod:`fieldenergy.model.maps`).
     """
 
     title: str
@@ -132,6 +137,7 @@ class Case:
     discretisation: Discretisation = field(default_factory=Discretisation)
     source: str | None = None
     folder: str | None = None
+    maps: tuple[MapSpec, ...] = ()
 
     def circuit_index(self, name: str) -> int:
         """Position of circuit ``name`` in :attr:`circuits`."""

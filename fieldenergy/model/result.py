@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -57,6 +58,22 @@ class Result:
         Total wall time (s).
     warnings
         Warnings raised while reading, discretising and solving.
+    field_inductance
+        Circuit inductance matrix by the field route, 1/mu0 * integral of B_p . B_q over all
+        space (H), carried to the limit with the A.J route's chord correction; ``None`` when
+        the field route was skipped.
+    field_energy, field_energy_error, tail_energy
+        Stored energy by the field route (J), its error estimate from the cubature (J), and
+        the part of it from outside the box about the conductors (J).
+    field_relative_error
+        The field route's own relative error estimate of its matrix.
+    route_gap, route_gap_matrix
+        |W_field - W_aj| / W_aj at the case currents, and the largest matrix-entry gap over
+        sqrt(L_pp L_qq); ``nan`` when the field route was skipped.
+    route_gap_flag, route_gap_hint
+        Whether a gap exceeds the tolerance, and which route to refine.
+    field_seconds
+        Wall time of the field route (s).
     """
 
     title: str
@@ -76,6 +93,16 @@ class Result:
     options: SolveOptions
     seconds: float
     warnings: tuple[str, ...] = field(default=())
+    field_inductance: NDArray[np.float64] | None = None
+    field_energy: float = math.nan
+    field_energy_error: float = math.nan
+    tail_energy: float = math.nan
+    field_relative_error: float = math.nan
+    route_gap: float = math.nan
+    route_gap_matrix: float = math.nan
+    route_gap_flag: bool = False
+    route_gap_hint: str = ""
+    field_seconds: float = math.nan
 
     @property
     def coupling(self) -> NDArray[np.float64]:

@@ -1,0 +1,88 @@
+"""Field route (1/(2 mu0) integral of |B|^2): time and accuracy per bundled case, cost growth.
+
+For each case in ``cases/`` the coarsest level of the default preset is integrated by the
+field route and compared with the A.J route's raw matrix of the same model (both without
+the section correction, which is common to both). A second table shows how the time grows
+with the number of segments (a loop cut into more chords, the wire radius fixed).
+
+Run:  python benchmarks/bench_field_route.py [CASE ...] [--cases-only | --growth-only]
+"""
+
+from __future__ import annotations
+
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+
+from fieldenergy import load_case
+from fieldenergy.discretise import discretise
+from fieldenergy.energy.from_field import field_inductance
+from fieldenergy.energy.from_potential import grouped_inductance
+from fieldenergy.model.filaments import Filaments
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def case_row(folder: Path) -> list[str]:
+    model = discretise(load_case(folder), level=0)
+    fil = model.filaments
+    t0 = time.perf_counter()
+    aj = grouped_inductance(fil, fil.circuit, fil.n_circuits)
+    t_aj = time.perf_counter() - t0
+    field = field_inductance(fil)
+    d = np.sqrt(np.diag(aj))
+    gap = float(np.max(np.abs(field.matrix - aj) / np.outer(d, d)))
+    tail = float(np.max(np.diag(field.tail) / np.diag(field.matrix)))
+    return [
+        folder.name,
+        str(fil.n_segments),
+        f"{field.seconds:.1f}",
+        f"{t_aj:.2f}",
+        f"{field.n_points / 1e6:.1f}",
+        f"{field.relative_error:.1e}",
+        f"{gap:.1e}",
+        f"{tail:.1e}",
+        "yes" if field.converged else "NO",
+    ]
+
+
+def growth_rows() -> list[list[str]]:
+    rows = []
+    for n in (48, 96, 192, 384):
+        t = 2 * np.pi * np.arange(n) / n
+        pts = np.column_stack([0.1 * np.cos(t), 0.1 * np.sin(t), np.zeros(n)])
+        fil = Filaments.from_segments(pts, np.roll(pts, -1, axis=0), radii=2e-3)
+        r = field_inductance(fil)
+        rows.append([str(n), f"{r.seconds:.2f}", f"{r.n_points / 1e6:.2f}", f"{r.n_points * n / r.seconds / 1e6:.0f}"])
+    return rows
+
+
+def show(header: list[str], rows: list[list[str]]) -> None:
+    widths = [max(len(h), *(len(r[i]) for r in rows)) for i, h in enumerate(header)]
+    print("  ".join(h.rjust(w) for h, w in zip(header, widths)))
+    for r in rows:
+        print("  ".join(c.rjust(w) for c, w in zip(r, widths)))
+
+
+def main() -> None:
+    field_inductance(Filaments.from_segments([[0, 0, 0], [1, 0, 0]], [[1, 0, 0], [0, 0, 0]], radii=0.05))  # compile
+    if "--growth-only" not in sys.argv:
+        header = ["case", "segments", "field s", "A.J s", "Mpoints", "est. rel", "gap", "tail", "converged"]
+        print("  ".join(header), flush=True)
+        names = [a for a in sys.argv[1:] if not a.startswith("--")]
+        for folder in sorted((ROOT / "cases").iterdir()):
+            if (folder / "case.toml").exists() and (not names or folder.name in names):
+                print("  ".join(case_row(folder)), flush=True)
+        print()
+    if "--cases-only" not in sys.argv:
+        rows = growth_rows()
+        show(["segments", "field s", "Mpoints", "Mpairs/s"], rows)
+        n = np.array([float(r[0]) for r in rows])
+        secs = np.array([float(r[1]) for r in rows])
+        print(f"time ~ segments^{np.polyfit(np.log(n), np.log(secs), 1)[0]:.2f} (points fixed by the geometry)")
+
+
+if __name__ == "__main__":
+    main()
