@@ -1,4 +1,4 @@
-"""The ``fieldenergy`` command: ``check``, ``solve`` and ``map`` a case.
+"""The ``fieldenergy`` command: ``check``, ``solve``, ``map``, ``compare`` and ``batch``.
 
 ``main(argv)`` returns the exit status, so tests can call it in-process. A user's mistake
 (any :class:`~fieldenergy.errors.FieldEnergyError`) is one line on stderr and status 2;

@@ -201,42 +201,11 @@ def grouped_mutual_sum(
         acc = np.empty(n_groups)
         part = partial[c]
         for k in range(k_begin + c * n_k // n_chunks, k_begin + (c + 1) * n_k // n_chunks):
-            _accumulate_row(
-                k,
-                geom,
-                soa,
-                weights,
-                gmd,
-                filament,
-                group,
-                zt,
-                nodes,
-                wts,
-                rel_tol,
-                n_panel,
-                row,
-                xrow,
-                acc,
-                part,
-            )
-            if n - 1 - k != k:
+            n_rows = 1 if n - 1 - k == k else 2  # the middle row of an odd fold is done once
+            for r in range(n_rows):
+                i = k if r == 0 else n - 1 - k
                 _accumulate_row(
-                    n - 1 - k,
-                    geom,
-                    soa,
-                    weights,
-                    gmd,
-                    filament,
-                    group,
-                    zt,
-                    nodes,
-                    wts,
-                    rel_tol,
-                    n_panel,
-                    row,
-                    xrow,
-                    acc,
-                    part,
+                    i, geom, soa, weights, gmd, filament, group, zt, nodes, wts, rel_tol, n_panel, row, xrow, acc, part
                 )
     for c in range(n_chunks):
         out += partial[c]
