@@ -438,3 +438,14 @@ def test_cell_data_and_physical_groups_are_read(tmp_path: Path) -> None:
         np.testing.assert_array_equal(fem.points, scale * pts)
         assert set(fem.cell_sets) == set(sets)
         np.testing.assert_array_equal(fem.cell_sets[sets[0]], np.flatnonzero(tags == 11))
+
+
+@pytest.mark.parametrize("suffix", [".xdmf", ".vtk"])
+def test_other_formats_read_back_the_same_energy(tmp_path: Path, suffix: str) -> None:
+    """XDMF (needs h5py) and legacy VTK carry the field through meshio unchanged."""
+    pts, blocks = box_mesh("hexahedron", n=3, half=0.5, jitter=0.25)
+    b = np.tile([0.3, -0.4, 1.2], (len(pts), 1))
+    path = tmp_path / f"box{suffix}"
+    meshio.write(path, meshio.Mesh(pts, blocks, point_data={"B": b}))
+    fem = read_fem_result(path)
+    assert fem_energy(fem) == pytest.approx(1.69 * 1.0 / (2 * MU0), rel=ROUNDING_RTOL)
