@@ -18,7 +18,7 @@ from numpy.typing import NDArray
 
 from fieldenergy.discretise import discretise
 from fieldenergy.energy.extrapolate import richardson
-from fieldenergy.energy.from_field import field_inductance
+from fieldenergy.energy.from_field import MAX_FIELD_POINTS, field_inductance
 from fieldenergy.energy.from_potential import grouped_inductance
 from fieldenergy.energy.route_check import route_gap
 from fieldenergy.model import Case, FilamentModel
@@ -35,6 +35,14 @@ QUADRATURE_RELATIVE_ERROR: float = 1.0e-9
 #: (about 2.2 times fewer chords): the grid's error hardly depends on the chords, and the
 #: doubled grid costs 16 times the pairs.
 SECTION_CHECK_SAGITTA_FACTOR: float = 5.0
+
+#: Budget of the field route in point-segment pairs (about a minute on 2 cores). Its cost is
+#: points x segments, so a case with many segments gets fewer cubature points; when the
+#: budget stops the cubature first, the result says so and carries the error reached.
+FIELD_ROUTE_PAIR_BUDGET: float = 6.0e10
+
+#: Fewest cubature points the field route is allowed, whatever the pair budget says.
+FIELD_ROUTE_MIN_POINTS: int = 200_000
 
 #: progress(description, total) -> a context manager yielding an update(n_done) callable.
 ProgressFactory = Callable[[str, int], AbstractContextManager[Callable[[int], None]]]
@@ -132,7 +140,8 @@ def _with_field_route(result: Result, model: FilamentModel, tolerance: float, pr
     route is carried to the limit with the A.J route's chord correction from that level.
     """
     with progress(f"field route: {model.filaments.n_segments} segments", 1) as update:
-        fi = field_inductance(model.filaments, rel_tol=tolerance)
+        budget = max(FIELD_ROUTE_MIN_POINTS, int(FIELD_ROUTE_PAIR_BUDGET / max(model.filaments.n_segments, 1)))
+        fi = field_inductance(model.filaments, rel_tol=tolerance, max_points=min(budget, MAX_FIELD_POINTS))
         update(1)
     n_circuits = len(result.circuit_names)
     section = circuit_matrix(np.diag(gmd_correction(model)), model.coil_circuit, n_circuits)
