@@ -221,3 +221,42 @@ def test_discovery_skips_result_and_hidden_folders_and_the_hash_follows_inputs(t
 @pytest.mark.parametrize("module", [discovery, plan, _work], ids=lambda m: m.__name__)
 def test_docstring_examples_run(module: object) -> None:
     assert doctest.testmod(module).failed == 0  # type: ignore[arg-type]
+
+
+DECLARED_CASE = """
+title = "Loop with a dump resistor and a field line"
+[[circuit]]
+name = "c"
+current = "40 A"
+resistance = "0.2 ohm"
+[[coil]]
+name = "loop"
+circuit = "c"
+section = { shape = "round", radius = "1 mm" }
+path = { kind = "circle", radius = 0.1, center = [0, 0, 0], normal = [0, 0, 1] }
+[[map]]
+name = "axis"
+kind = "line"
+start = [0, 0, -0.1]
+end = [0, 0, 0.1]
+count = 5
+quantities = ["B"]
+"""
+
+
+def test_batch_runs_the_discharge_and_maps_a_case_declares(tmp_path: Path) -> None:
+    """Discharge of one RL circuit: tau = L/R, and all stored energy ends in R (circuit theory,
+    common practice); the map's centre value is mu0 I / (2 R) (Biot-Savart; from memory)."""
+    write_case(tmp_path / "declared", DECLARED_CASE)
+    summary = run_batch(tmp_path, FAST, jobs=1)
+    assert [row.status for row in summary.rows] == ["ok"]
+    data = json.loads((tmp_path / "declared" / "result" / "result.json").read_text())
+    inductance = data["inductance"]["matrix_H"][0][0]
+    assert data["discharge"]["time_constants_s"][0] == pytest.approx(inductance / 0.2, rel=1e-9)
+    assert sum(data["discharge"]["energy_deposited_J"]) == pytest.approx(data["energy"]["total_J"], rel=1e-9)
+    assert data["coils"][0]["name"] == "loop"
+    table = (tmp_path / "declared" / "result" / "maps" / "axis.csv").read_text().splitlines()
+    assert len(table) == 6
+    centre = dict(zip(table[0].split(","), map(float, table[3].split(","))))
+    bz = next(v for k, v in centre.items() if k.lower().startswith("bz"))
+    assert bz == pytest.approx(MU0 * 40 / (2 * 0.1), rel=1e-6)

@@ -11,15 +11,19 @@ import logging
 import time
 import warnings
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
 from fieldenergy.discretise import discretise
 from fieldenergy.errors import FieldEnergyError
 from fieldenergy.fields import b_field
+from fieldenergy.maps.evaluate import evaluate_maps
+from fieldenergy.mechanics import mechanics
 from fieldenergy.model import Case, CirclePath, Circuit, Coil, RoundSection
 from fieldenergy.model.options import SolveOptions
 from fieldenergy.model.result import Result
+from fieldenergy.output.mechanics_out import mechanics_document
 from fieldenergy.run import solve
 
 log = logging.getLogger(__name__)
@@ -42,12 +46,22 @@ class Outcome:
         Wall time of the solve (s); for a timeout, the time limit.
     result
         The result when ``status`` is ``ok``.
+    extra
+        The result-JSON entries of the case's mechanics (forces, peak fields, discharge):
+        plain data, so it travels from any worker.
+    maps
+        The field maps the case declares, evaluated (written by the client).
+    filaments
+        The conductors the maps were evaluated on (for the maps' geometry file).
     """
 
     status: str
     message: str
     seconds: float
     result: Result | None = None
+    extra: dict[str, Any] | None = None
+    maps: tuple[Any, ...] = ()
+    filaments: Any = None
 
 
 def compute(case: Case, options: SolveOptions) -> Outcome:
@@ -66,12 +80,24 @@ def compute(case: Case, options: SolveOptions) -> Outcome:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")  # solve() records its warnings in the result
             result = solve(case, options)
+            extra, maps, filaments = _declared_work(case, result, options)
     except FieldEnergyError as exc:
         return Outcome("failed", str(exc), time.perf_counter() - start)
     except Exception as exc:  # one case's bug must not stop the batch; the type is kept
         log.debug("case %r failed", case.title, exc_info=True)
         return Outcome("failed", f"{type(exc).__name__}: {exc}", time.perf_counter() - start)
-    return Outcome("ok", "; ".join(result.warnings), time.perf_counter() - start, result)
+    return Outcome("ok", "; ".join(result.warnings), time.perf_counter() - start, result, extra, maps, filaments)
+
+
+def _declared_work(case: Case, result: Result, options: SolveOptions) -> tuple[dict[str, Any], tuple[Any, ...], Any]:
+    """What a case asks for beyond the solve: its mechanics (as JSON entries) and its maps.
+
+    Mechanics are returned as plain data because the discretised model holds compiled path
+    expressions, which do not travel between processes.
+    """
+    mech = mechanics(case, result.inductance, options)
+    maps = tuple(evaluate_maps(case)) if case.maps else ()
+    return mechanics_document(mech), maps, (mech.model.filaments if maps else None)
 
 
 def prepare_worker(n_threads: int) -> None:

@@ -36,6 +36,7 @@ from fieldenergy.cautions import cautions
 from fieldenergy.errors import FieldEnergyError, FieldEnergyWarning
 from fieldenergy.model.options import SolveOptions
 from fieldenergy.model.result import Result
+from fieldenergy.maps.export import export_maps
 from fieldenergy.output.result_json import write_result_folder
 from fieldenergy.run import ProgressFactory
 
@@ -173,12 +174,25 @@ def _finish(root: Path, plan: CasePlan, entry: Entry, outcome: Outcome, report: 
                 outcome.result,
                 report(outcome.result, entry.source),
                 entry.source,
-                extra={PROVENANCE_KEY: entry.provenance},
+                extra={PROVENANCE_KEY: entry.provenance, **(outcome.extra or {})},
+                more_files=_map_writer(outcome),
             )
         except (FieldEnergyError, OSError) as exc:  # a full disk fails this case, not the batch
             failed = Outcome("failed", f"the result could not be written: {exc}", outcome.seconds)
             return row_from_outcome(root, entry, failed, _names(plan))
     return row_from_outcome(root, entry, outcome, _names(plan))
+
+
+def _map_writer(outcome: Outcome) -> Callable[[Path], None] | None:
+    """Writes the case's evaluated maps into ``maps/`` of the result folder, if it has any."""
+    if not outcome.maps or outcome.result is None:
+        return None
+    maps, filaments, currents = list(outcome.maps), outcome.filaments, outcome.result.currents
+
+    def write(folder: Path) -> None:
+        export_maps(folder / "maps", maps, filaments, currents)
+
+    return write
 
 
 def _plots(plans: list[CasePlan], entries: list[tuple[CasePlan, Entry]], rows: tuple[BatchRow, ...]) -> tuple[Path, ...]:
