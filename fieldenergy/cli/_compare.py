@@ -46,6 +46,12 @@ def add_args(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--json", metavar="FILE", help="write the JSON summary to FILE")
     parser.add_argument("--plot", metavar="FILE", help="PNG of error against distance (default: RESULT-compare.png)")
     parser.add_argument("--no-plot", action="store_true", help="do not draw the PNG")
+    parser.add_argument(
+        "--method",
+        choices=("auto", "direct", "fast"),
+        default="auto",
+        help="reference field: fast multipole on the exact paths for large meshes (auto), or always direct/fast",
+    )
 
 
 def _scale(args: argparse.Namespace) -> float:
@@ -76,7 +82,7 @@ def run(args: argparse.Namespace) -> int:
     case = load(args)
     axis = _axis(args)
     fem = read_fem_result(args.result, field=args.field, scale=_scale(args), axis=axis)
-    comparison = compare_fem(case, fem, options, progress=terminal_progress)
+    comparison = compare_fem(case, fem, options, method=args.method, progress=terminal_progress)
     base = Path(args.result)
     out = Path(args.out) if args.out else base.with_name(f"{base.stem}-compare.vtu")
     write_annotated_mesh(out, comparison)

@@ -30,7 +30,7 @@ from fieldenergy.femcompare.metrics import (
     set_errors,
 )
 from fieldenergy.femcompare.quadrature import DEFAULT_POINTS_PER_AXIS
-from fieldenergy.fieldmap import field_with_error
+from fieldenergy.maps.evaluate import reference_field
 from fieldenergy.model import Case
 from fieldenergy.model.options import SolveOptions
 from fieldenergy.run import ProgressFactory, settings_for
@@ -122,6 +122,7 @@ def compare_fem(
     *,
     points_per_axis: int = DEFAULT_POINTS_PER_AXIS,
     band_edges: tuple[float, ...] = DEFAULT_BAND_EDGES,
+    method: str = "auto",
     progress: ProgressFactory | None = None,
 ) -> Comparison:
     """Compare a finite-element B field with the case's Biot-Savart field on the same mesh.
@@ -138,6 +139,10 @@ def compare_fem(
         Gauss points per reference-cell axis.
     band_edges
         Upper edges of the distance bands, in band units (increasing).
+    method
+        How the reference is evaluated: ``auto`` (the fast multipole method on the exact
+        paths for large meshes, if fmm3dpy is installed), ``direct`` or ``fast`` (see
+        :func:`fieldenergy.maps.evaluate.reference_field`).
     progress
         Optional progress-bar factory for the reference evaluation.
 
@@ -151,7 +156,7 @@ def compare_fem(
     samples = fem.points[fem.used_nodes()] if fem.location == "point" else quad.centroids
     fem_s = fem.values[fem.used_nodes()] if fem.location == "point" else fem.values
     pts_s, pts_q = fem.to_3d(samples), fem.to_3d(quad.points)
-    b, _, err = field_with_error(case, np.concatenate([pts_s, pts_q]), options, progress)
+    b, _, err = reference_field(case, np.concatenate([pts_s, pts_q]), options, method=method, progress=progress)
     ns = len(pts_s)
     data = Sampled(quad.weights, fem_values_at(fem, quad), fem.components(b[ns:]), fem_s, fem.components(b[:ns]), pts_s)
     model = discretise(case, level=0, discretisation=settings_for(case, options))

@@ -7,7 +7,7 @@ from contextlib import AbstractContextManager
 from dataclasses import dataclass
 
 import numpy as np
-from numpy.typing import NDArray
+from numpy.typing import ArrayLike, NDArray
 
 from fieldenergy.discretise import discretise
 from fieldenergy.maps.exact_path import (
@@ -20,6 +20,7 @@ from fieldenergy.maps.grids import map_points, reference_point
 from fieldenergy.maps.quantities import map_quantities
 from fieldenergy.model import Case, FilamentModel
 from fieldenergy.model.maps import MapSpec
+from fieldenergy.model.options import SolveOptions
 
 #: The error estimate compares the field with a second evaluation at this Gauss order (and
 #: half the sub-chords on the conductor); the difference bounds the error of the finer one.
@@ -185,3 +186,41 @@ def _estimate_index(n_points: int) -> NDArray[np.int64]:
     rng = np.random.default_rng(0)
     return np.sort(rng.choice(n_points, ESTIMATE_POINTS, replace=False)).astype(np.int64)
 
+
+
+def reference_field(
+    case: Case,
+    points: ArrayLike,
+    options: SolveOptions | None = None,
+    *,
+    method: str = "auto",
+    progress: ProgressFactory | None = None,
+) -> tuple[Array, Array, Array]:
+    """B (T), A (T m) and a per-point error estimate of B (T) at many points.
+
+    Below :data:`FAST_MIN_PAIRS` (or with ``method="direct"``) this is the Richardson
+    evaluation over the two finest chord levels (:func:`fieldenergy.fieldmap.field_with_error`).
+    Above it, with fmm3dpy installed (or with ``method="fast"``), the field is integrated
+    along the exact paths by the fast multipole method with exact near corrections; its error
+    is estimated on a sample against a lower-order rule, and the largest relative error seen
+    there is applied to every point (times its |B|).
+    """
+    from fieldenergy.fieldmap import field_with_error
+    from fieldenergy.fastfield import fast_field
+
+    pts = np.ascontiguousarray(points, dtype=np.float64)
+    model = discretise(case)
+    elements = exact_elements(case, model)
+    if not _use_fast(method, len(pts), elements):
+        return field_with_error(case, pts, options, progress)
+    if progress is None:
+        b, a = fast_field(pts, elements)
+    else:
+        with progress("reference field (fast)", len(pts)) as update:
+            b, a = fast_field(pts, elements, progress=update)
+    index = _estimate_index(len(pts))
+    b_low = exact_field(pts[index], exact_elements(case, model, ESTIMATE_ORDER), max_subdivisions=MAX_SUBDIVISIONS // 2)[0]
+    mag = np.linalg.norm(b, axis=1)
+    floor = max(float(mag.max(initial=0.0)) * RELATIVE_FLOOR, np.finfo(float).tiny)
+    rel = np.linalg.norm(b[index] - b_low, axis=1) / np.maximum(mag[index], floor)
+    return b, a, float(rel.max(initial=0.0)) * np.maximum(mag, floor)
