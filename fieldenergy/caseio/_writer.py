@@ -14,6 +14,7 @@ from pathlib import Path as FilePath
 import numpy as np
 from numpy.typing import NDArray
 
+from fieldenergy.caseio._maps_writer import map_table, write_points_files
 from fieldenergy.caseio._reader import CASE_FILE_NAME
 from fieldenergy.errors import CaseError
 from fieldenergy.model.case import Case, Circuit, Coil, Discretisation, RectSection, RoundSection, Section
@@ -57,6 +58,7 @@ def write_case(case: Case, folder: str | os.PathLike[str]) -> FilePath:
     content = (_HEADER + tomli_w.dumps(case_document(case))).encode("utf-8")
     try:
         target.parent.mkdir(parents=True, exist_ok=True)
+        write_points_files(case.maps, target.parent)
         handle, temporary = tempfile.mkstemp(dir=target.parent, prefix=".case-", suffix=".toml.tmp")
     except OSError as exc:
         raise CaseError(f"cannot write the case file: {exc.strerror}", path=str(target)) from None
@@ -75,12 +77,15 @@ def write_case(case: Case, folder: str | os.PathLike[str]) -> FilePath:
 
 def case_document(case: Case) -> dict[str, object]:
     """The TOML document of ``case`` as nested dicts and lists of plain Python values."""
-    return {
+    document: dict[str, object] = {
         "title": case.title,
         "discretisation": _discretisation(case.discretisation),
         "circuit": [_circuit(c) for c in case.circuits],
         "coil": [_coil(c) for c in case.coils],
     }
+    if case.maps:
+        document["map"] = [map_table(spec) for spec in case.maps]
+    return document
 
 
 def _vec(values: NDArray[np.float64]) -> list[float]:
