@@ -1,6 +1,7 @@
 """Richardson extrapolation and its error estimate (L. F. Richardson, Phil. Trans. R. Soc. A 210, 1911).
 
 The sequences are built with known error terms, so the expected limits are exact.
+"""
 
 from __future__ import annotations
 
