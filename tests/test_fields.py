@@ -410,3 +410,15 @@ def test_vectorisable_log1p_matches_libm() -> None:
     ref = np.array([math.log1p(v) for v in x])
     assert np.max(np.abs(_log1p_sweep(x) - ref) / ref) < LOG1P_RTOL
     assert _log1p_sweep(np.array([0.0]))[0] == 0.0 and np.isinf(_log1p_sweep(np.array([np.inf]))[0])
+
+
+def test_log1p_at_the_ends_of_its_polynomial_range() -> None:
+    """1 + x next to 2^k sqrt2 and 2^k / sqrt2, where |s| = |f / (2 + f)| is largest (0.172)
+    and the fitted polynomial in s^2 is used at the end of its interval; against libm log1p."""
+    k = np.arange(0, 200, dtype=np.float64)
+    ends = np.concatenate([2.0**k * np.sqrt(2.0), 2.0 ** k[1:] / np.sqrt(2.0)])
+    x = (ends[:, None] * (1.0 + np.arange(-8, 9) * np.finfo(np.float64).eps)).ravel() - 1.0
+    x = x[x > 0.0]
+    ref = np.array([math.log1p(v) for v in x])
+    # The routine's stated bound (3 ulp); the fitted polynomial itself adds below 1/6 ulp.
+    assert np.max(np.abs(_log1p_sweep(x) - ref) / ref) < 3 * np.finfo(np.float64).eps
