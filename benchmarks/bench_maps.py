@@ -1,17 +1,21 @@
-"""Field maps at scale: the fast multipole evaluation against direct summation, one run.
+"""Field maps at scale: fast summation (treecode, and fmm3dpy if installed) against direct.
 
-Run from the repository root (needs fmm3dpy)::
+Run from the repository root::
 
-    python benchmarks/bench_maps.py [--targets 1000000] [--loops 100] [--chords 1000]
+    python benchmarks/bench_maps.py [--targets 1000000] [--loops 100] [--chords 1000] [--engine tree]
+
+For the largest goal (1e7 targets from 1e6 elements)::
+
+    python benchmarks/bench_maps.py --skip-crossover --targets 10000000 --loops 1000
 
 The conductors are a stack of ``--loops`` circular loops (radius 0.1 m, round 0.5 mm wire,
 invented), each cut into about ``--chords`` curved elements, so the model has loops x chords
 elements. Prints:
 
-1. the crossover: direct and fast times for growing square problems (targets = elements)
-   and the first size where fast wins;
+1. the crossover: direct, treecode and (if installed) fmm3dpy times for growing square
+   problems (targets = elements) and the first size where the treecode wins;
 2. the large map: ``--targets`` random points in a box around the stack (some next to the
-   wires), evaluated by the fast method; its time, the peak resident memory, and the largest
+   wires), evaluated by the ``--engine``; its time, the peak resident memory, and the largest
    relative error against direct summation on a random sample of targets, split into those
    farther than 5 mm from every wire and those closer in.
 """
@@ -29,7 +33,7 @@ import numpy as np
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 from fieldenergy.discretise import discretise
-from fieldenergy.fastfield import fast_field
+from fieldenergy.fastfield import fast_field, has_fmm
 from fieldenergy.maps.exact_path import exact_elements, exact_field
 from fieldenergy.model import (
     Case,
@@ -80,32 +84,37 @@ def timed(run, *args):  # type: ignore[no-untyped-def]
 
 
 def crossover(rng: np.random.Generator) -> None:
-    print("size (targets = elements)   direct s   fast s   fast/direct")
+    fmm = has_fmm()
+    print("size (targets = elements)   direct s   tree s   tree/direct" + ("   fmm s   fmm/direct" if fmm else ""))
     found = None
     for n_loops, n_chords in ((4, 250), (8, 500), (16, 1000), (32, 1000)):
         case = stack_case(n_loops, n_chords)
         el = exact_elements(case, discretise(case))
         pts = targets(len(el.nodes), n_loops, rng)
         t_direct, _ = timed(exact_field, pts, el)
-        t_fast, _ = timed(fast_field, pts, el)
-        print(f"{len(el.nodes):>24d} {t_direct:10.3f} {t_fast:8.3f} {t_fast / t_direct:12.3f}")
-        if found is None and t_fast < t_direct:
+        t_tree, _ = timed(lambda: fast_field(pts, el, engine="tree"))
+        line = f"{len(el.nodes):>24d} {t_direct:10.3f} {t_tree:8.3f} {t_tree / t_direct:12.3f}"
+        if fmm:
+            t_fmm, _ = timed(lambda: fast_field(pts, el, engine="fmm"))
+            line += f" {t_fmm:7.3f} {t_fmm / t_direct:11.3f}"
+        print(line)
+        if found is None and t_tree < t_direct:
             found = len(el.nodes)
-    print(f"crossover: fast beats direct from about {found} targets x {found} elements" if found else
-          "crossover: fast did not beat direct in this range")
+    print(f"crossover: the treecode beats direct from about {found} targets x {found} elements "
+          f"({float(found) ** 2:.1e} pairs)" if found else "crossover: the treecode did not beat direct in this range")
 
 
-def large_map(n_targets: int, n_loops: int, n_chords: int, rng: np.random.Generator) -> None:
+def large_map(n_targets: int, n_loops: int, n_chords: int, engine: str, rng: np.random.Generator) -> None:
     case = stack_case(n_loops, n_chords)
     t_el, el = timed(lambda: exact_elements(case, discretise(case)))
     pts = targets(n_targets, n_loops, rng)
-    t_fast, (b, _) = timed(lambda: fast_field(pts, el))
+    t_fast, (b, _) = timed(lambda: fast_field(pts, el, engine=engine))
     peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 2**20
     sample = rng.choice(n_targets, SAMPLE, replace=False)
     t_direct, (b_ref, _) = timed(lambda: exact_field(pts[sample], el))
     err = np.linalg.norm(b[sample] - b_ref, axis=1) / np.linalg.norm(b_ref, axis=1)
     far = wire_distance(pts[sample], n_loops) > NEAR
-    print(f"\n{n_targets} targets from {len(el.nodes)} elements: elements built in {t_el:.1f} s, "
+    print(f"\n{n_targets} targets from {len(el.nodes)} elements ({engine}): elements built in {t_el:.1f} s, "
           f"fast map in {t_fast:.1f} s, peak memory {peak:.2f} GiB")
     print(f"direct on {SAMPLE} sampled targets: {t_direct:.1f} s, so the whole map directly would take about "
           f"{t_direct * n_targets / SAMPLE:.0f} s ({t_direct * n_targets / SAMPLE / t_fast:.0f} x the fast time)")
@@ -119,13 +128,16 @@ def main() -> None:
     parser.add_argument("--loops", type=int, default=100)
     parser.add_argument("--chords", type=int, default=1000)
     parser.add_argument("--skip-crossover", action="store_true")
+    parser.add_argument("--engine", choices=("tree", "fmm"), default="tree")
     args = parser.parse_args()
     rng = np.random.default_rng(0)
     warm = stack_case(1, 100)  # compile the kernels before timing anything
     fast_field(targets(100, 1, rng), exact_elements(warm, discretise(warm)))
+    if has_fmm():
+        fast_field(targets(100, 1, rng), exact_elements(warm, discretise(warm)), engine="fmm")
     if not args.skip_crossover:
         crossover(rng)
-    large_map(args.targets, args.loops, args.chords, rng)
+    large_map(args.targets, args.loops, args.chords, args.engine, rng)
 
 
 if __name__ == "__main__":

@@ -1,20 +1,30 @@
-"""B and A at many points by the fast multipole method, with exact near-field corrections.
+"""B and A at many points by fast summation, with exact near-field corrections.
 
-A = mu0/(4 pi) int I dl / r is three Laplace potentials: each element contributes
-:data:`FAST_ORDER` point "charges" I dr/ds w_i (a Gauss rule along its exact path), summed by
-fmm3dpy's Laplace FMM (kernel 1/(4 pi r)), so A = mu0 * potential and B = curl A from the
-potential gradients. The Gauss rule is accurate only away from an element; for points within
+A = mu0/(4 pi) int I dl / r is three Laplace potentials: each element contributes a few
+point "charges" I dr/ds w_i (a Gauss rule along its exact path). Their sum is evaluated by
+one of two engines:
+
+``tree`` (the default; no extra dependency)
+    the dual-tree treecode of :mod:`fieldenergy.kernels._treecode` (barycentric Lagrange
+    interpolation on Chebyshev grids), which returns A and B = curl A directly, with
+    :data:`TREE_SOURCES` point sources per element;
+``fmm``
+    fmm3dpy's Laplace fast multipole method (kernel 1/(4 pi r)), so A = mu0 * potential and
+    B = curl A from the potential gradients, with :data:`FAST_ORDER` sources per element.
+    fmm3dpy is an optional dependency (``pip install fieldenergy[fast]``), imported where used.
+
+The Gauss rule is accurate only away from an element; for points within
 :data:`NEAR_RATIO` element sizes the point-source part is subtracted and the element's
 exact-path field added (:mod:`fieldenergy.kernels._fast_near`), so the accuracy next to the
-conductors equals the direct method's. Targets are processed in chunks of
-:data:`FAST_CHUNK` points, so memory stays bounded for any map size.
-
-fmm3dpy is an optional dependency (``pip install fieldenergy[fast]``), imported where used.
+conductors equals the direct method's. Targets are processed in chunks, so memory stays
+bounded for any map size.
 
 References
 ----------
 L. Greengard and V. Rokhlin, "A fast algorithm for particle simulations", J. Comput. Phys.
 73, 325 (1987): the fast multipole method.
+L. Wilson, N. Vaughn and R. Krasny, Comput. Phys. Commun. 265, 108017 (2021): the barycentric
+Lagrange dual tree traversal used by the treecode.
 """
 
 from __future__ import annotations
@@ -24,10 +34,11 @@ from collections.abc import Callable
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
-from fieldenergy.constants import MU0
+from fieldenergy.constants import MU0, MU0_OVER_4PI
 from fieldenergy.errors import FieldEnergyError
 from fieldenergy.fields import _check_finite_result, _points
 from fieldenergy.kernels._fast_near import near_correction
+from fieldenergy.kernels._treecode import SourceTree, tree_field
 from fieldenergy.maps.exact_path import (
     FAR_RATIO,
     MAX_SUBDIVISIONS,
@@ -53,6 +64,28 @@ FAST_CHUNK: int = 200_000
 #: 2e4 or 1e5 targets alike) and 7.9 GiB for 3e5; this keeps one call near 1.3 GiB.
 FAST_SOURCE_CHUNK: int = 60_000
 
+#: Point sources per element for the treecode. With :data:`NEAR_RATIO` = 3 the rule's error
+#: at the nearest far point is about (6 + sqrt 37)^(-2 x 4) ~ 2e-9 of the element's field,
+#: below the treecode's own interpolation error.
+TREE_SOURCES: int = 4
+
+#: Chebyshev grid order p of the treecode's proxies ((p + 1)^3 points per cell) and its
+#: separation parameter: cells interact through proxies when (r_T + r_S) < theta R.
+#: Measured on a stack of 100 loops (benchmarks/bench_maps.py): p = 7, theta = 0.5 gives a
+#: largest relative error of B of about 1e-7 on targets in and around the winding.
+TREE_ORDER: int = 7
+TREE_THETA: float = 0.5
+
+#: Most points in a leaf cell of the source and of the target tree.
+TREE_SOURCE_LEAF: int = 200
+TREE_TARGET_LEAF: int = 200
+
+#: Targets per treecode call: bounds the memory of the target tree and its proxies.
+TREE_CHUNK: int = 1_000_000
+
+#: Fast summation engines (see the module docstring).
+ENGINES: tuple[str, ...] = ("tree", "fmm")
+
 #: Most grid cells along one axis of the near-element search grid.
 MAX_GRID_CELLS: int = 256
 
@@ -60,7 +93,7 @@ Array = NDArray[np.float64]
 
 
 class FastFieldUnavailable(FieldEnergyError):
-    """The fast method was asked for but fmm3dpy is not installed."""
+    """The fmm engine was asked for but fmm3dpy is not installed."""
 
 
 def has_fmm() -> bool:
@@ -73,35 +106,51 @@ def has_fmm() -> bool:
 
 
 def fast_field(
-    points: ArrayLike, elements: ExactElements, *, eps: float = FMM_EPS, progress: Callable[[int], None] | None = None
+    points: ArrayLike, elements: ExactElements, *, engine: str = "tree", eps: float = FMM_EPS,
+    progress: Callable[[int], None] | None = None,
 ) -> tuple[Array, Array]:
-    """B (T) and A (T m) at points (m, shape (m, 3)) by the FMM with exact near corrections.
+    """B (T) and A (T m) at points (m, shape (m, 3)) by fast summation with exact near corrections.
+
+    ``engine`` is ``tree`` (the treecode) or ``fmm`` (fmm3dpy, with requested precision eps).
 
     Raises
     ------
     FastFieldUnavailable
-        If fmm3dpy is not installed.
+        If the fmm engine is asked for and fmm3dpy is not installed.
     GeometryError
         For bad points, or a point on a zero-radius conductor.
     """
-    try:
-        import fmm3dpy
-    except ImportError:
-        raise FastFieldUnavailable("the fast method needs fmm3dpy: pip install 'fieldenergy[fast]'") from None
+    if engine not in ENGINES:
+        raise ValueError(f"unknown fast engine {engine!r}; known: {', '.join(ENGINES)}")
     pts = _points(points)
     el = elements
-    src_pos, src_chg = point_sources(el, FAST_ORDER)
+    if engine == "fmm":
+        try:
+            import fmm3dpy
+        except ImportError:
+            raise FastFieldUnavailable("the fmm engine needs fmm3dpy: pip install 'fieldenergy[fast]'") from None
+        n_src, chunk = FAST_ORDER, FAST_CHUNK
+    else:
+        n_src, chunk = TREE_SOURCES, TREE_CHUNK
+    src_pos, src_chg = point_sources(el, n_src)
     grid = _element_grid(el)
     xg, wg, bary, _ = gauss_rule(el.order)
-    sources = np.ascontiguousarray(src_pos.reshape(-1, 3).T)
-    charges = np.ascontiguousarray(src_chg.reshape(-1, 3).T)
+    sources = np.ascontiguousarray(src_pos.reshape(-1, 3))
+    charges = np.ascontiguousarray(src_chg.reshape(-1, 3))
+    tree = SourceTree(sources, charges, TREE_ORDER, TREE_SOURCE_LEAF) if engine == "tree" else None
     b = np.empty((len(pts), 3))
     a = np.empty((len(pts), 3))
-    for i0 in range(0, len(pts), FAST_CHUNK):
-        i1 = min(len(pts), i0 + FAST_CHUNK)
-        pot, g = _multipole_sum(fmm3dpy, eps, sources, charges, np.ascontiguousarray(pts[i0:i1].T))
-        a[i0:i1] = MU0 * pot.T
-        b[i0:i1] = MU0 * np.column_stack([g[2, 1] - g[1, 2], g[0, 2] - g[2, 0], g[1, 0] - g[0, 1]])
+    for i0 in range(0, len(pts), chunk):
+        i1 = min(len(pts), i0 + chunk)
+        if tree is not None:
+            out = tree_field(pts[i0:i1], tree, TREE_THETA, TREE_TARGET_LEAF)
+            b[i0:i1] = MU0_OVER_4PI * out[:3].T
+            a[i0:i1] = MU0_OVER_4PI * out[3:].T
+        else:
+            pot, g = _multipole_sum(fmm3dpy, eps, np.ascontiguousarray(sources.T), np.ascontiguousarray(charges.T),
+                                    np.ascontiguousarray(pts[i0:i1].T))
+            a[i0:i1] = MU0 * pot.T
+            b[i0:i1] = MU0 * np.column_stack([g[2, 1] - g[1, 2], g[0, 2] - g[2, 0], g[1, 0] - g[0, 1]])
         near_correction(pts[i0:i1], el.nodes, el.tang, el.ends, el.sag, el.radii, src_pos, src_chg, xg, wg, bary,
                         FAR_RATIO, MAX_SUBDIVISIONS, NEAR_RATIO, *grid, b[i0:i1], a[i0:i1])
         if progress is not None:

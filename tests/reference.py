@@ -192,3 +192,16 @@ def b_a_quad(
     b_vec = _K * current * np.array([integral(db, k) for k in range(3)])
     a_vec = _K * current * integral(inv_r) * np.array(d)
     return b_vec, a_vec
+
+
+def point_elements_numpy(targets: Array, positions: Array, charges: Array, chunk: int = 256) -> Array:
+    """A and B of point current elements q at y, without mu0/(4 pi): rows Bx, By, Bz, Ax, Ay, Az
+    of shape (6, m); B = sum q x r / |r|^3, A = sum q / |r|, r = x - y; coincident pairs left out."""
+    out = np.zeros((6, len(targets)))
+    for i0 in range(0, len(targets), chunk):
+        r = targets[i0 : i0 + chunk, None, :] - positions[None, :, :]
+        dist = np.linalg.norm(r, axis=2)
+        inv = np.divide(1.0, dist, out=np.zeros_like(dist), where=dist > 0)
+        out[:3, i0 : i0 + chunk] = np.einsum("ijk,ij->ki", np.cross(charges[None, :, :], r), inv**3)
+        out[3:, i0 : i0 + chunk] = np.einsum("jk,ij->ki", charges, inv)
+    return out

@@ -1,4 +1,5 @@
-"""The fast multipole field against direct summation on random conductors and targets."""
+"""Fast summation (treecode and fast multipole engines) against direct summation on random
+conductors and targets."""
 
 from __future__ import annotations
 
@@ -21,11 +22,14 @@ from fieldenergy.model import (
 )
 from fieldenergy.model.maps import PointsMap
 
-fmm3dpy = pytest.importorskip("fmm3dpy")
+from fieldenergy.fastfield import has_fmm
 
 #: The requested accuracy of maps: 1e-6 of |B| (homogeneity in ppm), met with margin by the
-#: multipole tolerance (1e-10) and the five-point source rule beyond two element sizes.
+#: treecode (about 1e-7), the multipole tolerance (1e-10) and the source rules beyond three
+#: element sizes (2e-9 and 1e-13).
 FAST_RTOL = 1e-6
+
+ENGINES = ["tree", pytest.param("fmm", marks=pytest.mark.skipif(not has_fmm(), reason="fmm3dpy not installed"))]
 
 
 def _random_case(seed: int) -> Case:
@@ -58,27 +62,29 @@ def _targets(case: Case, rng: np.random.Generator, n: int) -> np.ndarray:
     return pts
 
 
+@pytest.mark.parametrize("engine", ENGINES)
 @pytest.mark.parametrize("seed", [0, 1])
-def test_fast_matches_direct_on_random_cases(seed: int) -> None:
+def test_fast_matches_direct_on_random_cases(seed: int, engine: str) -> None:
     case = _random_case(seed)
     elements = exact_elements(case, discretise(case))
     pts = _targets(case, np.random.default_rng(seed + 10), 1500)
     b_direct, a_direct = exact_field(pts, elements)
-    b_fast, a_fast = fast_field(pts, elements)
+    b_fast, a_fast = fast_field(pts, elements, engine=engine)
     err_b = np.linalg.norm(b_fast - b_direct, axis=1) / np.linalg.norm(b_direct, axis=1)
     err_a = np.linalg.norm(a_fast - a_direct, axis=1) / np.linalg.norm(a_direct, axis=1)
     assert err_b.max() < FAST_RTOL, f"B: largest relative error {err_b.max():.2e}"
     assert err_a.max() < FAST_RTOL, f"A: largest relative error {err_a.max():.2e}"
 
 
-def test_points_inside_a_core_and_near_corners_are_corrected() -> None:
+@pytest.mark.parametrize("engine", ENGINES)
+def test_points_inside_a_core_and_near_corners_are_corrected(engine: str) -> None:
     """Targets inside the 2 mm core of the polygon's wire and at its corners."""
     case = _random_case(3)
     elements = exact_elements(case, discretise(case))
     corners = np.array([[0.2, 0, 0], [0.3, 0, 0], [0.3, 0.1, 0.02], [0.2, 0.1, 0]])
     pts = np.vstack([corners + [0.0005, 0.0003, 0.0], corners + [0.0, 0.0, 0.005], [[0.25, 0.0, 0.001]]])
     b_direct, _ = exact_field(pts, elements)
-    b_fast, _ = fast_field(pts, elements)
+    b_fast, _ = fast_field(pts, elements, engine=engine)
     err = np.linalg.norm(b_fast - b_direct, axis=1) / np.linalg.norm(b_direct, axis=1)
     assert err.max() < FAST_RTOL, f"largest relative error {err.max():.2e}"
 
@@ -105,20 +111,22 @@ def test_map_method_override_and_missing_fmm(monkeypatch: pytest.MonkeyPatch) ->
 
     monkeypatch.setitem(sys.modules, "fmm3dpy", None)
     with pytest.raises(FastFieldUnavailable, match="pip install"):
-        evaluate_map(case, spec, method="fast")
+        evaluate_map(case, spec, method="fmm")
 
 
-def test_chunked_sums_equal_one_call(monkeypatch: pytest.MonkeyPatch) -> None:
-    """Cutting targets and sources into chunks changes only the rounding of the sums."""
+@pytest.mark.parametrize("engine", ENGINES)
+def test_chunked_sums_equal_one_call(monkeypatch: pytest.MonkeyPatch, engine: str) -> None:
+    """Cutting targets (and, for the fmm engine, sources) into chunks changes the result only
+    within the engines' own tolerance (the treecode's cells depend on the chunk)."""
     from fieldenergy import fastfield
 
     case = _random_case(1)
     elements = exact_elements(case, discretise(case))
     pts = _targets(case, np.random.default_rng(7), 400)
-    b_one, a_one = fast_field(pts, elements)
+    b_one, a_one = fast_field(pts, elements, engine=engine)
     monkeypatch.setattr(fastfield, "FAST_CHUNK", 150)
+    monkeypatch.setattr(fastfield, "TREE_CHUNK", 150)
     monkeypatch.setattr(fastfield, "FAST_SOURCE_CHUNK", 1000)
-    b_chunked, a_chunked = fast_field(pts, elements)
-    #: each chunk's multipole sum is accurate to its eps (1e-10), far below the map tolerance
-    np.testing.assert_allclose(b_chunked, b_one, rtol=0, atol=FAST_RTOL * 1e-2 * np.abs(b_one).max())
-    np.testing.assert_allclose(a_chunked, a_one, rtol=0, atol=FAST_RTOL * 1e-2 * np.abs(a_one).max())
+    b_chunked, a_chunked = fast_field(pts, elements, engine=engine)
+    np.testing.assert_allclose(b_chunked, b_one, rtol=0, atol=FAST_RTOL * 1e-1 * np.abs(b_one).max())
+    np.testing.assert_allclose(a_chunked, a_one, rtol=0, atol=FAST_RTOL * 1e-1 * np.abs(a_one).max())

@@ -48,9 +48,10 @@ def add_args(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--no-plot", action="store_true", help="do not draw the PNG")
     parser.add_argument(
         "--method",
-        choices=("auto", "direct", "fast"),
+        choices=("auto", "direct", "fast", "fmm"),
         default="auto",
-        help="reference field: fast multipole on the exact paths for large meshes (auto), or always direct/fast",
+        help="reference field: treecode on the exact paths for large meshes (auto), or always direct, "
+             "treecode (fast) or fast multipole (fmm, needs fmm3dpy)",
     )
 
 

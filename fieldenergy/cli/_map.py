@@ -35,8 +35,9 @@ def add_args(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--points", metavar="FILE", help="CSV file with columns x,y,z (m); needs --out")
     parser.add_argument("--out", metavar="FILE", help="output CSV for --points: x,y,z,Bx,By,Bz,Ax,Ay,Az (SI)")
     parser.add_argument("--out-dir", metavar="DIR", help="folder for the case's maps (default: CASE/maps)")
-    parser.add_argument("--method", choices=("auto", "direct", "fast"), default="auto",
-                        help="map summation: fast multipole (needs fmm3dpy), direct, or chosen by size (default)")
+    parser.add_argument("--method", choices=("auto", "direct", "fast", "fmm"), default="auto",
+                        help="map summation: treecode (fast), fast multipole (fmm, needs fmm3dpy), direct, "
+                             "or chosen by size (auto, default)")
 
 
 def run(args: argparse.Namespace) -> int:

@@ -30,16 +30,15 @@ ESTIMATE_ORDER: int = 6
 #: larger maps), since it costs about as much as the map itself.
 ESTIMATE_POINTS: int = 4096
 
-#: Automatic choice: the fast multipole method is used when fmm3dpy is installed and the
-#: number of target x element pairs exceeds this. Measured with benchmarks/bench_maps.py
-#: (2 shared cores, fmm3dpy 2.1 wheel): fast took 2.5 and 1.1 times the direct time at
-#: 2.6e8 and 1.0e9 pairs, the ratio falling as pairs^-0.5 (direct is quadratic, fast
-#: linear): the two meet near 1.2e9 pairs.
-FAST_MIN_PAIRS: float = 2.0e9
+#: Automatic choice: the treecode is used when the number of target x element pairs exceeds
+#: this. Measured with benchmarks/bench_maps.py (2 cores): the treecode already wins at 1e6
+#: pairs (0.056 s against 0.083 s) and takes 0.035 of the direct time at 1e9; below 1e8 pairs
+#: direct summation takes about a second and keeps its 1e-12 accuracy, so it is kept there.
+FAST_MIN_PAIRS: float = 1.0e8
 
 #: Ways to evaluate a map: ``auto`` chooses by size, ``direct`` sums every pair, ``fast`` uses
-#: the fast multipole method (needs fmm3dpy).
-METHODS: tuple[str, ...] = ("auto", "direct", "fast")
+#: the treecode and ``fmm`` the fast multipole method of fmm3dpy (an optional dependency).
+METHODS: tuple[str, ...] = ("auto", "direct", "fast", "fmm")
 
 #: |B| below this fraction of the map's largest |B| counts as zero for relative errors.
 RELATIVE_FLOOR: float = 1.0e-9
@@ -151,26 +150,24 @@ def evaluate_maps(case: Case, *, method: str = "auto", progress: ProgressFactory
     return [evaluate_map(case, spec, model=model, method=method, progress=progress) for spec in case.maps]
 
 
-def _use_fast(method: str, n_points: int, elements: ExactElements) -> bool:
-    """Whether to use the fast multipole method (see :data:`METHODS`)."""
-    from fieldenergy.fastfield import has_fmm
-
+def _use_fast(method: str, n_points: int, elements: ExactElements) -> str | None:
+    """The fast engine to use (``tree`` or ``fmm``), or None for direct summation (see :data:`METHODS`)."""
     if method not in METHODS:
         raise ValueError(f"unknown map method {method!r}; known: {', '.join(METHODS)}")
     if method == "auto":
-        return float(n_points) * len(elements.nodes) > FAST_MIN_PAIRS and has_fmm()
-    return method == "fast"
+        return "tree" if float(n_points) * len(elements.nodes) > FAST_MIN_PAIRS else None
+    return {"direct": None, "fast": "tree", "fmm": "fmm"}[method]
 
 
 def _field(
     points: Array, elements: ExactElements, label: str, progress: ProgressFactory | None,
-    max_subdivisions: int = MAX_SUBDIVISIONS, fast: bool = False,
+    max_subdivisions: int = MAX_SUBDIVISIONS, fast: str | None = None,
 ) -> tuple[Array, Array]:
     from fieldenergy.fastfield import fast_field
 
     def run(update: Callable[[int], None] | None) -> tuple[Array, Array]:
-        if fast:
-            return fast_field(points, elements, progress=update)
+        if fast is not None:
+            return fast_field(points, elements, engine=fast, progress=update)
         return exact_field(points, elements, max_subdivisions=max_subdivisions, progress=update)
 
     if progress is None:
@@ -200,8 +197,8 @@ def reference_field(
 
     Below :data:`FAST_MIN_PAIRS` (or with ``method="direct"``) this is the Richardson
     evaluation over the two finest chord levels (:func:`fieldenergy.fieldmap.field_with_error`).
-    Above it, with fmm3dpy installed (or with ``method="fast"``), the field is integrated
-    along the exact paths by the fast multipole method with exact near corrections; its error
+    Above it (or with ``method="fast"`` or ``"fmm"``), the field is integrated along the exact
+    paths by fast summation (:func:`fieldenergy.fastfield.fast_field`) with exact near corrections; its error
     is estimated on a sample against a lower-order rule, and the largest relative error seen
     there is applied to every point (times its |B|).
     """
@@ -211,13 +208,14 @@ def reference_field(
     pts = np.ascontiguousarray(points, dtype=np.float64)
     model = discretise(case)
     elements = exact_elements(case, model)
-    if not _use_fast(method, len(pts), elements):
+    engine = _use_fast(method, len(pts), elements)
+    if engine is None:
         return field_with_error(case, pts, options, progress)
     if progress is None:
-        b, a = fast_field(pts, elements)
+        b, a = fast_field(pts, elements, engine=engine)
     else:
-        with progress("reference field (fast)", len(pts)) as update:
-            b, a = fast_field(pts, elements, progress=update)
+        with progress(f"reference field ({engine})", len(pts)) as update:
+            b, a = fast_field(pts, elements, engine=engine, progress=update)
     index = _estimate_index(len(pts))
     b_low = exact_field(pts[index], exact_elements(case, model, ESTIMATE_ORDER), max_subdivisions=MAX_SUBDIVISIONS // 2)[0]
     mag = np.linalg.norm(b, axis=1)
