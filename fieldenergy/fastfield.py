@@ -37,7 +37,8 @@ from numpy.typing import ArrayLike, NDArray
 from fieldenergy.constants import MU0, MU0_OVER_4PI
 from fieldenergy.errors import FieldEnergyError
 from fieldenergy.fields import _check_finite_result, _points
-from fieldenergy.kernels._fast_near import near_correction
+from fieldenergy.kernels._biot_savart import _segment_table
+from fieldenergy.kernels._fast_near import near_correction, near_segment_correction
 from fieldenergy.kernels._treecode import SourceTree, tree_field
 from fieldenergy.maps.exact_path import (
     FAR_RATIO,
@@ -69,22 +70,28 @@ FAST_SOURCE_CHUNK: int = 60_000
 #: below the treecode's own interpolation error.
 TREE_SOURCES: int = 4
 
-#: Chebyshev grid order p of the treecode's proxies ((p + 1)^3 points per cell) and its
-#: separation parameter: cells interact through proxies when (r_T + r_S) < theta R.
-#: Measured on a stack of 100 loops (benchmarks/bench_maps.py): p = 7, theta = 0.5 gives a
-#: largest relative error of B of about 1e-7 on targets in and around the winding.
-TREE_ORDER: int = 7
-TREE_THETA: float = 0.5
-
-#: Most points in a leaf cell of the source and of the target tree.
-TREE_SOURCE_LEAF: int = 200
-TREE_TARGET_LEAF: int = 200
+#: Chebyshev grid order p of the treecode's proxies ((p + 1)^3 points per cell), its
+#: separation parameter (cells interact through proxies when (r_T + r_S) < theta R) and the
+#: most points in a leaf cell. Measured on 3e5 targets from a stack of 100 loops of 1000
+#: elements (2 cores; largest relative error of B on 1500 sampled targets, some next to the
+#: wires): p = 7, theta = 0.5: 25 s, 1.4e-7; p = 9, theta = 0.7, leaves of 300: 19.5 s, 1.2e-7;
+#: p = 7, theta = 0.55: 18 s, 5.2e-7; p = 6 or 7 at theta = 0.7: 9 to 10 s but 1e-5 to 6e-5.
+TREE_ORDER: int = 9
+TREE_THETA: float = 0.7
+TREE_SOURCE_LEAF: int = 300
+TREE_TARGET_LEAF: int = 300
 
 #: Targets per treecode call: bounds the memory of the target tree and its proxies.
 TREE_CHUNK: int = 1_000_000
 
 #: Fast summation engines (see the module docstring).
 ENGINES: tuple[str, ...] = ("tree", "fmm")
+
+#: Straight segments nearer to a point than this many core radii are summed in closed form
+#: (the finite-core rule also reaches points within a core radius of a segment's line beyond its
+#: ends, where it differs from the line field by O((a/z)^2) at axial distance z; at 8 radii the
+#: field energy of a rectangular pack of short chords came within 1e-7 of direct summation).
+NEAR_CORE_RADII: float = 8.0
 
 #: Most grid cells along one axis of the near-element search grid.
 MAX_GRID_CELLS: int = 256
@@ -103,6 +110,62 @@ def has_fmm() -> bool:
     except ImportError:
         return False
     return True
+
+
+class TreeSum:
+    """The treecode field of a set of elements, built once and evaluated at many point sets.
+
+    ``order`` and ``theta`` are the treecode's grid order and separation parameter (the
+    defaults give about 1e-7 relative; lower orders are cheaper and less accurate).
+    """
+
+    def __init__(self, elements: ExactElements, order: int | None = None, theta: float | None = None) -> None:
+        order = TREE_ORDER if order is None else order
+        self.elements = elements
+        self.theta = TREE_THETA if theta is None else theta
+        self.src_pos, self.src_chg = point_sources(elements, TREE_SOURCES)
+        self.grid = _element_grid(elements)
+        self.rule = gauss_rule(elements.order)[:3]
+        self.tree = SourceTree(self.src_pos.reshape(-1, 3), self.src_chg.reshape(-1, 3), order, TREE_SOURCE_LEAF)
+
+    def __call__(self, points: Array, b: Array, a: Array) -> None:
+        """Write B (T) and A (T m) at points (m, 3), C-contiguous, into b and a (m, 3)."""
+        out = tree_field(points, self.tree, self.theta, TREE_TARGET_LEAF)
+        b[:] = MU0_OVER_4PI * out[:3].T
+        a[:] = MU0_OVER_4PI * out[3:].T
+        el = self.elements
+        near_correction(points, el.nodes, el.tang, el.ends, el.sag, el.radii, self.src_pos, self.src_chg, *self.rule,
+                        FAR_RATIO, MAX_SUBDIVISIONS, NEAR_RATIO, *self.grid, b, a)
+
+
+class SegmentTreeSum:
+    """The treecode B of straight segments with finite cores, built once, evaluated at many point sets.
+
+    Equal to :func:`fieldenergy.kernels._biot_savart.b_from_segments` (same closed form and
+    core rule next to the segments) up to the treecode's tolerance: segments nearer to a
+    point than :data:`NEAR_RATIO` lengths or :data:`NEAR_CORE_RADII` core radii are summed in
+    closed form, the rest as :data:`TREE_SOURCES` Gauss point sources each.
+    """
+
+    def __init__(self, starts: Array, ends: Array, currents: Array, radii: Array, order: int | None = None,
+                 theta: float | None = None) -> None:
+        order = TREE_ORDER if order is None else order
+        self.theta = TREE_THETA if theta is None else theta
+        xs, ws = np.polynomial.legendre.leggauss(TREE_SOURCES)
+        d = ends - starts
+        self.src_pos = np.ascontiguousarray(starts[:, None, :] + 0.5 * (1.0 + xs)[None, :, None] * d[:, None, :])
+        self.src_chg = np.ascontiguousarray((0.5 * ws)[None, :, None] * (currents[:, None] * d)[:, None, :])
+        self.tab = _segment_table(starts, ends, currents, radii)
+        lengths = np.linalg.norm(d, axis=1)
+        self.reach = np.maximum(NEAR_RATIO * lengths, NEAR_CORE_RADII * radii)
+        self.grid = _midpoint_grid(0.5 * (starts + ends), self.reach + 0.5 * lengths)
+        self.tree = SourceTree(self.src_pos.reshape(-1, 3), self.src_chg.reshape(-1, 3), order, TREE_SOURCE_LEAF)
+
+    def __call__(self, points: Array, b: Array) -> None:
+        """Write B (T) at points (m, 3), C-contiguous, into b (m, 3)."""
+        out = tree_field(points, self.tree, self.theta, TREE_TARGET_LEAF)
+        b[:] = MU0_OVER_4PI * out[:3].T
+        near_segment_correction(points, self.tab, self.src_pos, self.src_chg, self.reach, *self.grid, b)
 
 
 def fast_field(
@@ -124,33 +187,31 @@ def fast_field(
         raise ValueError(f"unknown fast engine {engine!r}; known: {', '.join(ENGINES)}")
     pts = _points(points)
     el = elements
-    if engine == "fmm":
-        try:
-            import fmm3dpy
-        except ImportError:
-            raise FastFieldUnavailable("the fmm engine needs fmm3dpy: pip install 'fieldenergy[fast]'") from None
-        n_src, chunk = FAST_ORDER, FAST_CHUNK
-    else:
-        n_src, chunk = TREE_SOURCES, TREE_CHUNK
-    src_pos, src_chg = point_sources(el, n_src)
-    grid = _element_grid(el)
-    xg, wg, bary, _ = gauss_rule(el.order)
-    sources = np.ascontiguousarray(src_pos.reshape(-1, 3))
-    charges = np.ascontiguousarray(src_chg.reshape(-1, 3))
-    tree = SourceTree(sources, charges, TREE_ORDER, TREE_SOURCE_LEAF) if engine == "tree" else None
     b = np.empty((len(pts), 3))
     a = np.empty((len(pts), 3))
-    for i0 in range(0, len(pts), chunk):
-        i1 = min(len(pts), i0 + chunk)
-        if tree is not None:
-            out = tree_field(pts[i0:i1], tree, TREE_THETA, TREE_TARGET_LEAF)
-            b[i0:i1] = MU0_OVER_4PI * out[:3].T
-            a[i0:i1] = MU0_OVER_4PI * out[3:].T
-        else:
-            pot, g = _multipole_sum(fmm3dpy, eps, np.ascontiguousarray(sources.T), np.ascontiguousarray(charges.T),
-                                    np.ascontiguousarray(pts[i0:i1].T))
-            a[i0:i1] = MU0 * pot.T
-            b[i0:i1] = MU0 * np.column_stack([g[2, 1] - g[1, 2], g[0, 2] - g[2, 0], g[1, 0] - g[0, 1]])
+    if engine == "tree":
+        tree = TreeSum(el)
+        for i0 in range(0, len(pts), TREE_CHUNK):
+            i1 = min(len(pts), i0 + TREE_CHUNK)
+            tree(np.ascontiguousarray(pts[i0:i1]), b[i0:i1], a[i0:i1])
+            if progress is not None:
+                progress(i1)
+        _check_finite_result(b, pts)
+        return b, a
+    try:
+        import fmm3dpy
+    except ImportError:
+        raise FastFieldUnavailable("the fmm engine needs fmm3dpy: pip install 'fieldenergy[fast]'") from None
+    src_pos, src_chg = point_sources(el, FAST_ORDER)
+    grid = _element_grid(el)
+    xg, wg, bary, _ = gauss_rule(el.order)
+    sources = np.ascontiguousarray(src_pos.reshape(-1, 3).T)
+    charges = np.ascontiguousarray(src_chg.reshape(-1, 3).T)
+    for i0 in range(0, len(pts), FAST_CHUNK):
+        i1 = min(len(pts), i0 + FAST_CHUNK)
+        pot, g = _multipole_sum(fmm3dpy, eps, sources, charges, np.ascontiguousarray(pts[i0:i1].T))
+        a[i0:i1] = MU0 * pot.T
+        b[i0:i1] = MU0 * np.column_stack([g[2, 1] - g[1, 2], g[0, 2] - g[2, 0], g[1, 0] - g[0, 1]])
         near_correction(pts[i0:i1], el.nodes, el.tang, el.ends, el.sag, el.radii, src_pos, src_chg, xg, wg, bary,
                         FAR_RATIO, MAX_SUBDIVISIONS, NEAR_RATIO, *grid, b[i0:i1], a[i0:i1])
         if progress is not None:
@@ -196,11 +257,15 @@ def point_sources(elements: ExactElements, order: int) -> tuple[Array, Array]:
 def _element_grid(el: ExactElements) -> tuple[Array, float, NDArray[np.int64], NDArray[np.int64], NDArray[np.int64]]:
     """Uniform grid of element chord midpoints in CSR form (see the kernel's docstring)."""
     a, b = el.ends[:, :3], el.ends[:, 3:]
-    mid = 0.5 * (a + b)
     h = np.linalg.norm(b - a, axis=1)
-    reach = float(np.max((NEAR_RATIO + 0.5) * h + el.sag)) if len(h) else 1.0
-    lo, hi = (mid.min(axis=0), mid.max(axis=0)) if len(h) else (np.zeros(3), np.zeros(3))
-    cell = max(reach, float(np.max(hi - lo)) / MAX_GRID_CELLS) * (1.0 + 1e-9)
+    return _midpoint_grid(0.5 * (a + b), (NEAR_RATIO + 0.5) * h + el.sag)
+
+
+def _midpoint_grid(mid: Array, reach: Array) -> tuple[Array, float, NDArray[np.int64], NDArray[np.int64], NDArray[np.int64]]:
+    """Uniform grid of midpoints in CSR form, cells no smaller than any reach (from a midpoint)."""
+    far = float(np.max(reach)) if len(reach) else 1.0
+    lo, hi = (mid.min(axis=0), mid.max(axis=0)) if len(mid) else (np.zeros(3), np.zeros(3))
+    cell = max(far, float(np.max(hi - lo)) / MAX_GRID_CELLS) * (1.0 + 1e-9)
     dims = (np.floor((hi - lo) / cell).astype(np.int64) + 1)
     idx = np.floor((mid - lo) / cell).astype(np.int64)
     key = idx[:, 0] + dims[0] * (idx[:, 1] + dims[1] * idx[:, 2])

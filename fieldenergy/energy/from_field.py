@@ -33,6 +33,7 @@ from numpy.typing import ArrayLike, NDArray
 from fieldenergy.constants import MU0
 from fieldenergy.energy.cubature import CubatureResult, adaptive_octree, exterior_cube, seeded_cells
 from fieldenergy.errors import GeometryError
+from fieldenergy.fastfield import SegmentTreeSum
 from fieldenergy.kernels._biot_savart import b_from_segments
 from fieldenergy.model.filaments import Filaments
 
@@ -117,8 +118,56 @@ class FieldInductance:
         return energy, 0.5 * float(np.abs(i) @ self.error @ np.abs(i)), 0.5 * float(i @ self.tail @ i)
 
 
+#: One B evaluation of a circuit uses the treecode (:class:`fieldenergy.fastfield.SegmentTreeSum`)
+#: instead of direct summation when the circuit has at least FIELD_TREE_MIN_SEGMENTS segments
+#: and points x segments exceeds FIELD_TREE_MIN_PAIRS. Measured (2 cores): on 1e5 uniform
+#: points the treecode took 0.58, 0.87 and 0.51 of the direct time for 2e3, 2e4 and 1e5 segments,
+#: but the field route's points crowd around the conductors, where the closed-form near sums
+#: dominate: on the 2256-segment demo case the whole route took 37 s with it against 26 s without.
+FIELD_TREE_MIN_SEGMENTS: int = 50_000
+FIELD_TREE_MIN_PAIRS: float = 2.0e8
+
+#: Grid order and separation parameter of the field route's treecode: B to about 2e-5 of the
+#: largest |B| (measured on stacks of loops), so the energy density to a few 1e-5, far below the
+#: route's tolerance; cheaper than the maps' settings.
+FIELD_TREE_ORDER: int = 6
+FIELD_TREE_THETA: float = 0.6
+
+
+class _CircuitFields:
+    """B of each circuit at one ampere at point sets; each circuit's treecode is built on first use."""
+
+    def __init__(self, filaments: Filaments) -> None:
+        self.parts = []
+        for p in range(filaments.n_circuits):
+            sel = filaments.circuit == p
+            self.parts.append(tuple(np.ascontiguousarray(x[sel]) for x in
+                                    (filaments.starts, filaments.ends, filaments.weights, filaments.radii)))
+        self.trees: dict[int, SegmentTreeSum] = {}
+
+    def __call__(self, points: Array) -> Array:
+        out = np.zeros((len(self.parts), len(points), 3))
+        for p, (s, e, w, r) in enumerate(self.parts):
+            if len(s) == 0:
+                continue
+            if len(s) >= FIELD_TREE_MIN_SEGMENTS and float(len(points)) * len(s) > FIELD_TREE_MIN_PAIRS:
+                self._tree(p)(np.ascontiguousarray(points), out[p])
+                continue
+            for i0 in range(0, len(points), _CHUNK):
+                pts = np.ascontiguousarray(points[i0 : i0 + _CHUNK])
+                b_from_segments(pts, s, e, w, r, out[p, i0 : i0 + _CHUNK])
+        return out
+
+    def _tree(self, p: int) -> SegmentTreeSum:
+        if p not in self.trees:
+            self.trees[p] = SegmentTreeSum(*self.parts[p], order=FIELD_TREE_ORDER, theta=FIELD_TREE_THETA)
+        return self.trees[p]
+
+
 def circuit_fields(points: Array, filaments: Filaments) -> Array:
     """B of each circuit at one ampere, shape (n_circuits, m, 3), T/A.
+
+    Large evaluations (see :data:`FIELD_TREE_MIN_SEGMENTS`) use the treecode.
 
     Examples
     --------
@@ -126,27 +175,16 @@ def circuit_fields(points: Array, filaments: Filaments) -> Array:
     >>> round(float(circuit_fields(np.array([[0.1, 0.0, 0.0]]), fil)[0, 0, 1]) * 1e6, 6)
     2.0
     """
-    out = np.zeros((filaments.n_circuits, len(points), 3))
-    for p in range(filaments.n_circuits):
-        sel = filaments.circuit == p
-        if not sel.any():
-            continue
-        s = np.ascontiguousarray(filaments.starts[sel])
-        e = np.ascontiguousarray(filaments.ends[sel])
-        w = np.ascontiguousarray(filaments.weights[sel])
-        r = np.ascontiguousarray(filaments.radii[sel])
-        for i0 in range(0, len(points), _CHUNK):
-            pts = np.ascontiguousarray(points[i0 : i0 + _CHUNK])
-            b_from_segments(pts, s, e, w, r, out[p, i0 : i0 + _CHUNK])
-    return out
+    return _CircuitFields(filaments)(points)
 
 
 def _density(filaments: Filaments) -> tuple[Callable[[Array], Array], NDArray[np.int64], NDArray[np.int64]]:
     """Integrand of the upper-triangle entries B_p . B_q / mu0 and their (p, q) indices."""
     rows, cols = np.triu_indices(filaments.n_circuits)
+    fields = _CircuitFields(filaments)
 
     def f(points: Array) -> Array:
-        b = circuit_fields(points, filaments)
+        b = fields(points)
         return np.einsum("kmi,kmi->mk", b[rows], b[cols]) / MU0
 
     return f, rows, cols

@@ -23,6 +23,7 @@ import numpy as np
 from numba import njit, prange
 
 from fieldenergy.constants import MU0_OVER_4PI
+from fieldenergy.kernels._biot_savart import _AX, _AY, _AZ, _CUR, _DX, _DY, _DZ, _INV_L2, _pair
 from fieldenergy.kernels._exact_path import _distance, _element
 
 
@@ -82,3 +83,46 @@ def near_correction(points, nodes, tang, ends, sag, radii, src_pos, src_chg, xg,
         for c in range(3):
             b_out[t, c] += MU0_OVER_4PI * acc[c]
             a_out[t, c] += MU0_OVER_4PI * acc[3 + c]
+
+
+@njit(cache=True, parallel=True)
+def near_segment_correction(points, tab, src_pos, src_chg, reach, origin, cell, dims, cell_start, cell_segs, b_out):
+    """Add (closed form - point sources) of near straight segments to b_out (T).
+
+    The straight-segment counterpart of :func:`near_correction`, for B only: ``tab`` is the
+    segment table of :func:`fieldenergy.kernels._biot_savart._segment_table` and the closed
+    form is that kernel's, finite-core rule included, so the corrected field equals
+    :func:`fieldenergy.kernels._biot_savart.b_from_segments` up to the far sum's tolerance.
+    A segment is near a point closer than reach[j] to it; the grid (cells at least as large
+    as every reach) holds each segment by the cell of its midpoint.
+    """
+    for t in prange(points.shape[0]):
+        acc = np.zeros(6)
+        px, py, pz = points[t, 0], points[t, 1], points[t, 2]
+        home = _cell_of(points[t], origin, cell, dims)
+        for kz in range(max(home[2] - 1, 0), min(home[2] + 2, dims[2])):
+            for ky in range(max(home[1] - 1, 0), min(home[1] + 2, dims[1])):
+                for kx in range(max(home[0] - 1, 0), min(home[0] + 2, dims[0])):
+                    k = kx + dims[0] * (ky + dims[1] * kz)
+                    for i in range(cell_start[k], cell_start[k + 1]):
+                        j = cell_segs[i]
+                        if _segment_distance(px, py, pz, tab, j) >= reach[j]:
+                            continue
+                        _minus_sources(px, py, pz, j, src_pos, src_chg, acc)
+                        cx, cy, cz, f, _, _ = _pair(px, py, pz, tab, j)
+                        g = tab[_CUR, j] * f
+                        acc[0] += g * cx
+                        acc[1] += g * cy
+                        acc[2] += g * cz
+        for c in range(3):
+            b_out[t, c] += MU0_OVER_4PI * acc[c]
+
+
+@njit(cache=True, inline="always")
+def _segment_distance(px, py, pz, tab, j):
+    """Distance from a point to segment j of a segment table."""
+    ux, uy, uz = px - tab[_AX, j], py - tab[_AY, j], pz - tab[_AZ, j]
+    s = (ux * tab[_DX, j] + uy * tab[_DY, j] + uz * tab[_DZ, j]) * tab[_INV_L2, j]
+    s = min(1.0, max(0.0, s))
+    wx, wy, wz = ux - s * tab[_DX, j], uy - s * tab[_DY, j], uz - s * tab[_DZ, j]
+    return math.sqrt(wx * wx + wy * wy + wz * wz)

@@ -123,6 +123,24 @@ def exact_elements(case: Case, model: FilamentModel, order: int = GAUSS_ORDER) -
     s = straight_mask
     d = fil.ends[s] - fil.starts[s]
     parts.append((fil.starts[s][:, None, :] + 0.5 * (1.0 + xg)[None, :, None] * d[:, None, :], currents[s], fil.radii[s]))
+    return _elements(parts, order)
+
+
+def straight_elements(starts: Array, ends: Array, currents: Array, radii: Array, order: int = GAUSS_ORDER) -> ExactElements:
+    """Straight elements of segments (n, 3) -> (n, 3) m with currents (A) and core radii (m).
+
+    Their field is that of the segments (the kernels integrate straight elements exactly,
+    with the same finite-core rule as :mod:`fieldenergy.kernels._biot_savart`).
+    """
+    xg = gauss_rule(order)[0]
+    d = np.asarray(ends, dtype=np.float64) - starts
+    nodes = np.asarray(starts, dtype=np.float64)[:, None, :] + 0.5 * (1.0 + xg)[None, :, None] * d[:, None, :]
+    return _elements([(nodes, np.asarray(currents, dtype=np.float64), np.asarray(radii, dtype=np.float64))], order)
+
+
+def _elements(parts: list[tuple[Array, Array, Array]], order: int) -> ExactElements:
+    """ExactElements from (nodes (n, q, 3), currents (n,), radii (n,)) groups."""
+    _, _, _, dmat = gauss_rule(order)
     nodes = np.concatenate([p[0] for p in parts])
     cur = np.concatenate([p[1] for p in parts])
     radii = np.concatenate([p[2] for p in parts])
