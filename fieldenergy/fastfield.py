@@ -76,10 +76,11 @@ TREE_SOURCES: int = 4
 #: elements (2 cores; largest relative error of B on 1500 sampled targets, some next to the
 #: wires): p = 7, theta = 0.5: 25 s, 1.4e-7; p = 9, theta = 0.7, leaves of 300: 19.5 s, 1.2e-7;
 #: p = 7, theta = 0.55: 18 s, 5.2e-7; p = 6 or 7 at theta = 0.7: 9 to 10 s but 1e-5 to 6e-5.
-TREE_ORDER: int = 9
-TREE_THETA: float = 0.7
-TREE_SOURCE_LEAF: int = 300
-TREE_TARGET_LEAF: int = 300
+#: On 1e6 targets the first two took 55 and 57 s (errors 1.4e-7 and 4.0e-7): the first is kept.
+TREE_ORDER: int = 7
+TREE_THETA: float = 0.5
+TREE_SOURCE_LEAF: int = 200
+TREE_TARGET_LEAF: int = 200
 
 #: Targets per treecode call: bounds the memory of the target tree and its proxies.
 TREE_CHUNK: int = 1_000_000
