@@ -74,6 +74,6 @@ def _run_maps(args: argparse.Namespace) -> int:
     for res in results:
         mag = np.linalg.norm(res.b, axis=1)
         print(f"map {res.spec.name!r} ({res.spec.kind}, {len(res.points)} points): |B| from {mag.min():.6e} T "
-              f"to {mag.max():.6e} T; estimated relative error of B {res.relative_error:.1e} (exact-path rule)")
+              f"to {mag.max():.6e} T; estimated relative error of B {res.relative_error:.1e} (against a lower-order rule on a sample)")
     print(f"{len(files)} files written to {out_dir}")
     return 0
