@@ -39,7 +39,7 @@ from fieldenergy.errors import FieldEnergyError
 from fieldenergy.fields import _check_finite_result, _points
 from fieldenergy.kernels._biot_savart import _segment_table
 from fieldenergy.kernels._fast_near import near_correction, near_segment_correction
-from fieldenergy.kernels._treecode import SourceTree, tree_field
+from fieldenergy.kernels._treecode import SourceTree, build_tree, tree_field
 from fieldenergy.maps.exact_path import (
     FAR_RATIO,
     MAX_SUBDIVISIONS,
@@ -82,8 +82,9 @@ TREE_THETA: float = 0.5
 TREE_SOURCE_LEAF: int = 200
 TREE_TARGET_LEAF: int = 200
 
-#: Targets per treecode call: bounds the memory of the target tree and its proxies.
-TREE_CHUNK: int = 1_000_000
+#: Targets per treecode call (spatially sorted, see fast_field): bounds the memory of the target
+#: tree and its proxies and paces progress reports; measured 5 % slower than 1e6 per call.
+TREE_CHUNK: int = 250_000
 
 #: Fast summation engines (see the module docstring).
 ENGINES: tuple[str, ...] = ("tree", "fmm")
@@ -192,9 +193,17 @@ def fast_field(
     a = np.empty((len(pts), 3))
     if engine == "tree":
         tree = TreeSum(el)
+        # Chunks of spatially sorted targets (the octree's depth-first order), so that each
+        # chunk is compact: random chunks of a large map each span the whole volume and
+        # measured 35 % slower in chunks of 2.5e5 than in one call.
+        order = build_tree(pts, TREE_TARGET_LEAF)[0]
         for i0 in range(0, len(pts), TREE_CHUNK):
             i1 = min(len(pts), i0 + TREE_CHUNK)
-            tree(np.ascontiguousarray(pts[i0:i1]), b[i0:i1], a[i0:i1])
+            idx = order[i0:i1]
+            b_part, a_part = np.empty((len(idx), 3)), np.empty((len(idx), 3))
+            tree(np.ascontiguousarray(pts[idx]), b_part, a_part)
+            b[idx] = b_part
+            a[idx] = a_part
             if progress is not None:
                 progress(i1)
         _check_finite_result(b, pts)
