@@ -55,6 +55,19 @@ def _cell_of(p, origin, cell, dims):
     return out
 
 
+@njit(cache=True)
+def _neighbour_cells(p, origin, cell, dims, out):
+    """Indices of the (up to 27) grid cells around a point's cell into out; returns how many."""
+    home = _cell_of(p, origin, cell, dims)
+    n = 0
+    for kz in range(max(home[2] - 1, 0), min(home[2] + 2, dims[2])):
+        for ky in range(max(home[1] - 1, 0), min(home[1] + 2, dims[1])):
+            for kx in range(max(home[0] - 1, 0), min(home[0] + 2, dims[0])):
+                out[n] = kx + dims[0] * (ky + dims[1] * kz)
+                n += 1
+    return n
+
+
 @njit(cache=True, parallel=True)
 def near_correction(points, nodes, tang, ends, sag, radii, src_pos, src_chg, xg, wg, bary,
                     ratio, max_sub, near_ratio, origin, cell, dims, cell_start, cell_elems, b_out, a_out):
@@ -68,18 +81,16 @@ def near_correction(points, nodes, tang, ends, sag, radii, src_pos, src_chg, xg,
     for t in prange(points.shape[0]):
         acc = np.zeros(6)
         px, py, pz = points[t, 0], points[t, 1], points[t, 2]
-        home = _cell_of(points[t], origin, cell, dims)
-        for kz in range(max(home[2] - 1, 0), min(home[2] + 2, dims[2])):
-            for ky in range(max(home[1] - 1, 0), min(home[1] + 2, dims[1])):
-                for kx in range(max(home[0] - 1, 0), min(home[0] + 2, dims[0])):
-                    k = kx + dims[0] * (ky + dims[1] * kz)
-                    for j in range(cell_start[k], cell_start[k + 1]):
-                        e = cell_elems[j]
-                        d, h = _distance(px, py, pz, ends, e)
-                        if d - sag[e] >= near_ratio * h:
-                            continue
-                        _minus_sources(px, py, pz, e, src_pos, src_chg, acc)
-                        _element(px, py, pz, e, nodes, tang, ends, sag, radii, xg, wg, bary, ratio, max_sub, acc)
+        cells = np.empty(27, np.int64)
+        for c in range(_neighbour_cells(points[t], origin, cell, dims, cells)):
+            k = cells[c]
+            for j in range(cell_start[k], cell_start[k + 1]):
+                e = cell_elems[j]
+                d, h = _distance(px, py, pz, ends, e)
+                if d - sag[e] >= near_ratio * h:
+                    continue
+                _minus_sources(px, py, pz, e, src_pos, src_chg, acc)
+                _element(px, py, pz, e, nodes, tang, ends, sag, radii, xg, wg, bary, ratio, max_sub, acc)
         for c in range(3):
             b_out[t, c] += MU0_OVER_4PI * acc[c]
             a_out[t, c] += MU0_OVER_4PI * acc[3 + c]
@@ -99,21 +110,19 @@ def near_segment_correction(points, tab, src_pos, src_chg, reach, origin, cell, 
     for t in prange(points.shape[0]):
         acc = np.zeros(6)
         px, py, pz = points[t, 0], points[t, 1], points[t, 2]
-        home = _cell_of(points[t], origin, cell, dims)
-        for kz in range(max(home[2] - 1, 0), min(home[2] + 2, dims[2])):
-            for ky in range(max(home[1] - 1, 0), min(home[1] + 2, dims[1])):
-                for kx in range(max(home[0] - 1, 0), min(home[0] + 2, dims[0])):
-                    k = kx + dims[0] * (ky + dims[1] * kz)
-                    for i in range(cell_start[k], cell_start[k + 1]):
-                        j = cell_segs[i]
-                        if _segment_distance(px, py, pz, tab, j) >= reach[j]:
-                            continue
-                        _minus_sources(px, py, pz, j, src_pos, src_chg, acc)
-                        cx, cy, cz, f, _, _ = _pair(px, py, pz, tab, j)
-                        g = tab[_CUR, j] * f
-                        acc[0] += g * cx
-                        acc[1] += g * cy
-                        acc[2] += g * cz
+        cells = np.empty(27, np.int64)
+        for c in range(_neighbour_cells(points[t], origin, cell, dims, cells)):
+            k = cells[c]
+            for i in range(cell_start[k], cell_start[k + 1]):
+                j = cell_segs[i]
+                if _segment_distance(px, py, pz, tab, j) >= reach[j]:
+                    continue
+                _minus_sources(px, py, pz, j, src_pos, src_chg, acc)
+                cx, cy, cz, f, _, _ = _pair(px, py, pz, tab, j)
+                g = tab[_CUR, j] * f
+                acc[0] += g * cx
+                acc[1] += g * cy
+                acc[2] += g * cz
         for c in range(3):
             b_out[t, c] += MU0_OVER_4PI * acc[c]
 
