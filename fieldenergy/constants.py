@@ -32,6 +32,16 @@ MAX_SEGMENTS_PER_COIL: int = 2_000_000
 #: Relative tolerance below which two consecutive path points count as repeated.
 REPEATED_POINT_RTOL: float = 1.0e-12
 
+#: Two segments of one filament chain interact through the chain's GMD (Maxwell's device for
+#: the self-inductance of a conductor) only while they belong to one stretch of it: adjacent
+#: segments, or segments whose separation along the chain is at most this multiple of their
+#: centre distance. Stretches that come back close to each other (the turns of a helix, the
+#: legs of a hairpin) interact as two round wires do, through their centre distance (the GMD
+#: of two disjoint discs is their centre distance: Maxwell 1873, from memory). On a smooth
+#: curve of radius R the rule changes only pairs more than about 1.9 R apart, by
+#: O((g / R)^2), the order a thin-wire formula neglects anyway.
+CHAIN_ARC_OVER_CHORD: float = 2.0
+
 #: Coils of different windings closer than this fraction of the smaller section size
 #: are reported as intersecting.
 INTERSECTION_CLEARANCE_FRACTION: float = 1.0

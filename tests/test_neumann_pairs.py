@@ -132,14 +132,26 @@ def test_row_sum_path_matches_pair_path() -> None:
     rng = np.random.default_rng(11)
     starts = rng.uniform(-0.2, 0.2, size=(40, 3))
     ends = starts + rng.normal(size=(40, 3)) * 10 ** rng.uniform(-3, -1, size=(40, 1))
-    chain = rng.integers(0, 3, size=40)
+    chain = rng.integers(1, 3, size=40)
+    chain[:14] = 0  # a connected random walk: one piece, softened where arc <= 2 x chord
+    for k in range(1, 14):
+        starts[k] = ends[k - 1]
+        ends[k] = starts[k] + rng.normal(size=3) * 0.02
     wires = Filaments.from_segments(starts, ends, radii=1e-3, filament=chain)
     dense = partial_inductances(wires)
     t = (ends - starts) / np.linalg.norm(ends - starts, axis=1)[:, None]
+    piece, arc, loop = wires.chain_pieces()
+    half = 0.5 * np.linalg.norm(ends - starts, axis=1)
+    n_soft = 0
     for i, j in zip(*np.triu_indices(40, 1)):
-        g = wires.gmd[i] if chain[i] == chain[j] else 0.0
+        s = abs(arc[i] - arc[j])
+        r = np.linalg.norm(0.5 * (starts[i] + ends[i] - starts[j] - ends[j]))
+        soft = piece[i] == piece[j] and (s <= (1 + 1e-9) * (half[i] + half[j]) or s <= 2.0 * r)
+        n_soft += soft
+        g = wires.gmd[i] if soft else 0.0
         want = 1e-7 * (t[i] @ t[j]) * _pair_kernel(starts[i], ends[i], starts[j], ends[j], g)
         assert abs(dense[i, j] - want) <= ROUNDING_TOL * abs(dense).max(), f"pair {i}, {j}"
+    assert 13 < n_soft < 13 * 14 // 2
 
 
 @pytest.mark.parametrize(

@@ -148,11 +148,12 @@ def grouped_inductance(
     n_fold = (n + 1) // 2
     n_blocks = min(_N_BLOCKS, n_fold)
     per_matrix = 8 * n_groups * n_groups
+    piece, arc, loop = filaments.chain_pieces()
     for b in range(n_blocks):
         k0, k1 = b * n_fold // n_blocks, (b + 1) * n_fold // n_blocks
         n_chunks = int(max(1, min(_MAX_CHUNKS, k1 - k0, _CHUNK_BUDGET_BYTES // per_matrix)))
         grouped_mutual_sum(
-            filaments.starts, filaments.ends, filaments.weights, filaments.gmd, filaments.filament,
+            filaments.starts, filaments.ends, filaments.weights, filaments.gmd, piece, arc, loop,
             groups, n_groups, rel_tol, k0, k1, n_chunks, out,
         )  # fmt: skip
         if progress is not None:
@@ -274,9 +275,7 @@ def partial_inductances(
     if not (0.0 < rel_tol < 1.0):
         raise DiscretisationError(f"rel_tol must lie in (0, 1), got {rel_tol}")
     out = np.zeros((n, n))
-    partial_inductance_matrix(
-        filaments.starts, filaments.ends, filaments.gmd, filaments.filament, rel_tol, out
-    )
+    partial_inductance_matrix(filaments.starts, filaments.ends, filaments.gmd, *filaments.chain_pieces(), rel_tol, out)
     if not np.isfinite(out).all():
         raise GeometryError(
             "a partial inductance is not finite: segments of different filaments overlap "

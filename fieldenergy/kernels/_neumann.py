@@ -4,9 +4,12 @@ The partial mutual inductance of two straight segments a and b is Neumann's form
 
     M_ab = mu0/(4 pi) * (t_a . t_b) * I_ab,   I_ab = int_a int_b ds dt / sqrt(r^2 + g^2),
 
-with g = 0 between different filament chains and g = the chain's geometric mean distance (GMD)
-between two segments of one chain (Maxwell's device: a thin conductor's self-inductance is the
-mutual inductance between its centre line and a parallel line at distance GMD).
+with g = the chain's geometric mean distance (GMD) between two segments of one stretch of one
+filament chain (Maxwell's device: a thin conductor's self-inductance is the mutual inductance
+between its centre line and a parallel line at distance GMD), and g = 0 otherwise: between
+different chains, and between stretches of one chain that come back near each other, such as
+the turns of a helix (see :data:`fieldenergy.constants.CHAIN_ARC_OVER_CHORD` and
+:func:`same_stretch`).
 
 ``I_ab`` is evaluated in one of four ways:
 
@@ -32,7 +35,7 @@ import math
 import numpy as np
 from numba import njit, prange
 
-from fieldenergy.constants import MU0_OVER_4PI
+from fieldenergy.constants import CHAIN_ARC_OVER_CHORD, MU0_OVER_4PI
 from fieldenergy.kernels._neumann_far import (
     FAR_MAX_ORDER,
     far_thresholds,
@@ -45,6 +48,23 @@ from fieldenergy.kernels._neumann_far import (
     self_integral,
 )
 from fieldenergy.kernels._neumann_near import near_integral, panel_order
+
+_ARC2 = CHAIN_ARC_OVER_CHORD * CHAIN_ARC_OVER_CHORD
+
+
+@njit(cache=True, inline="always")
+def same_stretch(own, other, arc_i, arc_j, loop, half_sum, r2):
+    """Whether two segments of chains ``own`` and ``other`` lie on one stretch of one chain.
+
+    arc_i, arc_j: their midpoints' arc coordinates on the chain; loop: the chain's length if
+    closed, else 0; half_sum: the sum of their half-lengths; r2: their centre distance squared.
+    Adjacent segments always do; others when the arc between them is at most
+    CHAIN_ARC_OVER_CHORD times their centre distance.
+    """
+    s = abs(arc_i - arc_j)
+    if loop > 0.0:
+        s = min(s, loop - s)
+    return other == own and (s <= (1.0 + 1e-9) * half_sum or s * s <= _ARC2 * r2)
 
 
 @njit(cache=True, error_model="numpy")
@@ -103,8 +123,9 @@ def _rules(rel_tol):
 
 
 @njit(cache=True, error_model="numpy")
-def _row_mutuals(i, geom, soa, gmd, filament, zt, nodes, wts, rel_tol, n_panel, row, xrow):
-    """row[j] = M_ij (H) for j > i: Neumann's formula, softened by gmd[i] on i's own chain.
+def _row_mutuals(i, geom, soa, gmd, filament, arc, loop, zt, nodes, wts, rel_tol, n_panel, row, xrow):
+    """row[j] = M_ij (H) for j > i: Neumann's formula, softened by gmd[i] on i's own stretch
+    of its chain (:func:`same_stretch`; ``filament``, arc, loop: the piece, arc and loop of ``Filaments.chain_pieces``).
 
     First pass: the multipole for every j, branch-free over contiguous rows of ``soa`` (the
     (7, n) transpose of ``geom``), so that it vectorises; ``xrow[j]`` keeps x of each pair.
@@ -116,12 +137,15 @@ def _row_mutuals(i, geom, soa, gmd, filament, zt, nodes, wts, rel_tol, n_panel, 
     xi, yi, zi, tax, tay, taz, ha = cx[i], cy[i], cz[i], tx[i], ty[i], tz[i], half[i]
     own = filament[i]
     g2own = gmd[i] * gmd[i]
+    arc_i, loop_i = arc[i], loop[i]
     for j in range(i + 1, n):
         rx = xi - cx[j]
         ry = yi - cy[j]
         rz = zi - cz[j]
-        inv = 1.0 / (rx * rx + ry * ry + rz * rz + (g2own if filament[j] == own else 0.0))
         hb = half[j]
+        r2 = rx * rx + ry * ry + rz * rz
+        soft = same_stretch(own, filament[j], arc_i, arc[j], loop_i, ha + hb, r2)
+        inv = 1.0 / (r2 + (g2own if soft else 0.0))
         tbx, tby, tbz = tx[j], ty[j], tz[j]
         xrow[j] = (ha * ha + hb * hb) * inv
         cos_ij = tax * tbx + tay * tby + taz * tbz
@@ -132,11 +156,12 @@ def _row_mutuals(i, geom, soa, gmd, filament, zt, nodes, wts, rel_tol, n_panel, 
             continue
         tbx, tby, tbz, hb = tx[j], ty[j], tz[j], half[j]
         cos_ij = tax * tbx + tay * tby + taz * tbz
-        g = gmd[i] if filament[j] == own else 0.0
         rx = xi - cx[j]
         ry = yi - cy[j]
         rz = zi - cz[j]
-        dc = math.sqrt(rx * rx + ry * ry + rz * rz)
+        r2 = rx * rx + ry * ry + rz * rz
+        g = gmd[i] if same_stretch(own, filament[j], arc_i, arc[j], loop_i, ha + hb, r2) else 0.0
+        dc = math.sqrt(r2)
         na = order_for((dc - hb) / ha, zt)
         nb = order_for((dc - ha) / hb, zt)
         parallel = parallel_integral(rx, ry, rz, tax, tay, taz, tbx, tby, tbz, ha, hb, g * g)
@@ -153,14 +178,14 @@ def _row_mutuals(i, geom, soa, gmd, filament, zt, nodes, wts, rel_tol, n_panel, 
 
 @njit(cache=True, error_model="numpy")
 def _accumulate_row(
-    i, geom, soa, weights, gmd, filament, group, zt, nodes, wts, rel_tol, n_panel, row, xrow, acc, part
+    i, geom, soa, weights, gmd, filament, arc, loop, group, zt, nodes, wts, rel_tol, n_panel, row, xrow, acc, part
 ):
     """Add w_i w_j M_ij for all j >= i to ``part[group[i], group[j]]`` and its mirror.
 
     The row is first summed by group into ``acc`` (n_groups,), so each pair costs one
     scattered addition; the row total is then spread over the row and column of group[i].
     """
-    _row_mutuals(i, geom, soa, gmd, filament, zt, nodes, wts, rel_tol, n_panel, row, xrow)
+    _row_mutuals(i, geom, soa, gmd, filament, arc, loop, zt, nodes, wts, rel_tol, n_panel, row, xrow)
     acc[:] = 0.0
     for j in range(i + 1, geom.shape[0]):
         acc[group[j]] += weights[j] * row[j]
@@ -174,7 +199,7 @@ def _accumulate_row(
 
 @njit(cache=True, error_model="numpy", parallel=True)
 def grouped_mutual_sum(
-    starts, ends, weights, gmd, filament, group, n_groups, rel_tol, k_begin, k_end, n_chunks, out
+    starts, ends, weights, gmd, filament, arc, loop, group, n_groups, rel_tol, k_begin, k_end, n_chunks, out
 ):
     """Add sum_{i in p, j in q} w_i w_j M_ij to ``out[p, q]`` for the outer rows of a fold range.
 
@@ -186,7 +211,9 @@ def grouped_mutual_sum(
     added to ``out`` after the loop.
 
     starts, ends: (n, 3) float64, m. weights, gmd: (n,) float64 (ampere-turns per ampere; m).
-    filament, group: (n,) int64. n_groups, k_begin, k_end, n_chunks: int. rel_tol: float, the
+    filament, group: (n,) int64; filament, arc, loop are the piece, arc and loop of
+    ``Filaments.chain_pieces``; arc, loop (n,) float64, m.
+    n_groups, k_begin, k_end, n_chunks: int. rel_tol: float, the
     per-pair relative accuracy. out: (n_groups, n_groups) float64, H, added to.
     """
     n = starts.shape[0]
@@ -205,20 +232,20 @@ def grouped_mutual_sum(
             for r in range(n_rows):
                 i = k if r == 0 else n - 1 - k
                 _accumulate_row(
-                    i, geom, soa, weights, gmd, filament, group, zt, nodes, wts, rel_tol, n_panel, row, xrow, acc, part
+                    i, geom, soa, weights, gmd, filament, arc, loop, group, zt, nodes, wts, rel_tol, n_panel, row, xrow, acc, part
                 )
     for c in range(n_chunks):
         out += partial[c]
 
 
 @njit(cache=True, error_model="numpy")
-def partial_inductance_matrix(starts, ends, gmd, filament, rel_tol, out):
+def partial_inductance_matrix(starts, ends, gmd, filament, arc, loop, rel_tol, out):
     """Fill the dense (n, n) matrix ``out`` of partial inductances M_ij (H).
 
     Serial on purpose: it serves tests and inspection of small n (memory O(n^2)), where a
     parallel version would cost more in compile time than it saves. Row i computes j >= i;
     the lower triangle is mirrored. starts, ends: (n, 3) float64, m; gmd: (n,) float64, m;
-    filament: (n,) int64; rel_tol: float, per-pair relative accuracy; out: (n, n) float64.
+    filament (n,) int64, arc, loop (n,) float64, m: ``Filaments.chain_pieces``; rel_tol: float, per-pair relative accuracy; out: (n, n) float64.
     """
     n = starts.shape[0]
     geom = segment_geometry(starts, ends)
@@ -227,6 +254,6 @@ def partial_inductance_matrix(starts, ends, gmd, filament, rel_tol, out):
     xrow = np.empty(n)
     for i in range(n):
         out[i, i] = MU0_OVER_4PI * self_integral(2.0 * geom[i, 6], gmd[i])
-        _row_mutuals(i, geom, soa, gmd, filament, zt, nodes, wts, rel_tol, n_panel, out[i], xrow)
+        _row_mutuals(i, geom, soa, gmd, filament, arc, loop, zt, nodes, wts, rel_tol, n_panel, out[i], xrow)
         for j in range(i):
             out[i, j] = out[j, i]

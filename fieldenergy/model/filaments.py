@@ -80,6 +80,36 @@ class Filaments:
         """Number of straight segments."""
         return len(self.weights)
 
+    def chain_pieces(self) -> tuple[NDArray[np.int64], NDArray[np.float64], NDArray[np.float64]]:
+        """Connected pieces of the filament chains, and arc coordinates along them.
+
+        A chain's segments are taken in array order; a piece is a run of them in which each
+        segment starts where the one before it ends (to 1e-9 of their lengths), so disjoint
+        loops given one filament index are separate pieces. Returns, each of shape (n,): the
+        piece index of each segment (int64), the arc coordinate of its midpoint along the
+        piece (m), and the piece's length if it is closed (its last segment ends where its
+        first starts), else 0 (m).
+        """
+        n = self.n_segments
+        if n == 0:
+            return np.zeros(0, np.int64), np.zeros(0), np.zeros(0)
+        lengths = np.linalg.norm(self.ends - self.starts, axis=1)
+        order = np.argsort(self.filament, kind="stable")
+        fil, st, en, ln = self.filament[order], self.starts[order], self.ends[order], lengths[order]
+        joined = np.linalg.norm(st[1:] - en[:-1], axis=1) <= 1e-9 * (ln[1:] + ln[:-1])
+        first = np.flatnonzero(np.r_[True, (fil[1:] != fil[:-1]) | ~joined])
+        last = np.r_[first[1:], n] - 1
+        group = np.repeat(np.arange(len(first)), np.diff(np.r_[first, n]))
+        cum = np.cumsum(ln)
+        before = (cum - ln)[first]
+        total = cum[last] - before
+        closed = np.linalg.norm(en[last] - st[first], axis=1) <= 1e-9 * total
+        piece, arc, loop = np.empty(n, np.int64), np.empty(n), np.empty(n)
+        piece[order] = group
+        arc[order] = cum - 0.5 * ln - before[group]
+        loop[order] = np.where(closed, total, 0.0)[group]
+        return piece, arc, loop
+
     def currents(self, circuit_currents: NDArray[np.float64]) -> NDArray[np.float64]:
         """Segment currents (A) for the given circuit terminal currents (A), shape (n,)."""
         circuit_currents = np.asarray(circuit_currents, dtype=np.float64)
