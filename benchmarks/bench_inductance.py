@@ -6,7 +6,12 @@ time of :func:`fieldenergy.energy.inductance_matrix`, the pair rate (n (n + 1) /
 second), the CPU time of all threads, and peak memory: Python-side allocations (tracemalloc)
 and the process's peak resident set (getrusage, which also sees the kernel's buffers).
 
-Run:  python benchmarks/bench_inductance.py   (about 20 s on 2 cores, first run +30 s compile)
+Then the fast A.J sum (:mod:`fieldenergy.energy.fast_inductance`: treecode plus exact near
+pairs) on the same windings up to 2e5 segments: its wall time, the direct time where the
+direct sum runs (up to 2e4 segments, or --direct-up-to), their ratio, the largest relative
+difference of the matrices, and the process's peak resident set.
+
+Run:  python benchmarks/bench_inductance.py   (about 1.5 min on 2 cores, first run +60 s compile)
 """
 
 from __future__ import annotations
@@ -17,15 +22,19 @@ import time
 import tracemalloc
 from pathlib import Path
 
+import argparse
+
 import numba
 import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
 from fieldenergy.energy import inductance_matrix
+from fieldenergy.energy.fast_inductance import fast_grouped_inductance
 from fieldenergy.model.filaments import Filaments
 
 SIZES = (1250, 2500, 5000, 10000, 20000)
+FAST_SIZES = (5000, 20000, 50000, 200000)
 TURNS = 10
 RADIUS = 0.1
 PITCH = 0.005
@@ -56,6 +65,9 @@ def winding(n_segments: int) -> Filaments:
 
 
 def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--direct-up-to", type=int, default=20000, help="largest size also summed directly")
+    args = parser.parse_args()
     inductance_matrix(winding(40))  # compile (or load from the cache) before timing
     print(f"numba threads: {numba.get_num_threads()}")
     print(
@@ -75,6 +87,29 @@ def main() -> None:
             f"{model.n_segments:>9} {wall:>8.3f} {cpu:>8.3f} {pairs / wall / 1e6:>9.1f} "
             f"{py_peak / 2**20:>11.2f} {rss:>12.1f}  {mat[0, 0] * 1e6:.6f}"
         )
+    fast_table(args.direct_up_to)
+
+
+def fast_table(direct_up_to: int) -> None:
+    """Fast against direct A.J sums, growing sizes."""
+    small = winding(400)
+    fast_grouped_inductance(small, small.circuit, small.n_circuits)  # compile before timing
+    print()
+    print("fast A.J sum (treecode + exact near pairs) against the direct sum")
+    print(f"{'segments':>9} {'fast s':>8} {'direct s':>9} {'direct/fast':>12} {'rel diff':>9} {'rss peak MB':>12}")
+    for n in FAST_SIZES:
+        model = winding(n)
+        wall0 = time.perf_counter()
+        fast = fast_grouped_inductance(model, model.circuit, model.n_circuits)
+        t_fast = time.perf_counter() - wall0
+        t_direct, diff = float("nan"), float("nan")
+        if n <= direct_up_to:
+            wall0 = time.perf_counter()
+            direct = inductance_matrix(model)
+            t_direct = time.perf_counter() - wall0
+            diff = float(np.abs(fast.matrix - direct).max() / np.abs(np.diag(direct)).max())
+        rss = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
+        print(f"{model.n_segments:>9} {t_fast:>8.2f} {t_direct:>9.2f} {t_direct / t_fast:>12.2f} {diff:>9.1e} {rss:>12.1f}")
 
 
 if __name__ == "__main__":

@@ -12,6 +12,7 @@ from fieldenergy.cautions import cautions
 from fieldenergy.describe import CaseSummary
 from fieldenergy.energy.route_check import ROUTE_GAP_TOLERANCE
 from fieldenergy.model.result import Result
+from fieldenergy.run import uses_fast_sum
 
 if TYPE_CHECKING:
     from fieldenergy.mechanics import Mechanics
@@ -34,6 +35,14 @@ def _si(value: float, unit: str) -> str:
     exp3 = int(math.floor(math.log10(abs(value)) / 3) * 3)
     exp3 = min(max(exp3, -12), 9)
     return f"{value / 10**exp3:.6g} {prefixes[exp3]}{unit}"
+
+
+def _aj_sum(result: Result) -> str:
+    """How the A.J double sums of the levels were evaluated."""
+    fast = [uses_fast_sum(result.options.aj_method, r.n_segments) for r in result.levels]
+    if all(fast):
+        return "treecode with exact near pairs"
+    return "direct" if not any(fast) else "direct, then treecode with exact near pairs"
 
 
 def solve_report(result: Result, source: str | None, mechanics: Mechanics | None = None) -> str:
@@ -66,7 +75,7 @@ def solve_report(result: Result, source: str | None, mechanics: Mechanics | None
         f"observed order {result.observed_order:.2f})",
         "Levels: "
         + ", ".join(f"{r.level}: {r.n_segments} segments in {r.seconds:.2f} s" for r in result.levels),
-        f"Preset: {result.options.preset}; run time {result.seconds:.2f} s",
+        f"Preset: {result.options.preset}; A.J sum: {_aj_sum(result)}; run time {result.seconds:.2f} s",
     ]
     if result.warnings:
         lines += ["", "Warnings:"] + [f"  - {w}" for w in result.warnings]

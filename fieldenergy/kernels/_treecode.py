@@ -384,10 +384,37 @@ def _p2p(x, y, z, sx, sy, sz, qx, qy, qz, s0, s1, b0, b1, b2, a0, a1, a2):
             a2[i] += cz * inv
 
 
+@njit(cache=True, inline="always", error_model="numpy")
+def _p2p_a(x, y, z, sx, sy, sz, qx, qy, qz, s0, s1, a0, a1, a2):
+    """Add A (a0, a1, a2) alone of sources s0..s1 at the points x, y, z (as :func:`_p2p`)."""
+    for j in range(s0, s1):
+        yx, yy, yz = sx[j], sy[j], sz[j]
+        cx, cy, cz = qx[j], qy[j], qz[j]
+        for i in range(x.shape[0]):
+            dx = x[i] - yx
+            dy = y[i] - yy
+            dz = z[i] - yz
+            r2 = dx * dx + dy * dy + dz * dz
+            inv = 1.0 / np.sqrt(r2) if r2 > 0.0 else 0.0
+            a0[i] += cx * inv
+            a1[i] += cy * inv
+            a2[i] += cz * inv
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _interact(a_only, x, y, z, sx, sy, sz, qx, qy, qz, s0, s1, b0, b1, b2, a0, a1, a2):
+    """:func:`_p2p`, or :func:`_p2p_a` when only A is wanted (B is then left at zero)."""
+    if a_only:
+        _p2p_a(x, y, z, sx, sy, sz, qx, qy, qz, s0, s1, a0, a1, a2)
+    else:
+        _p2p(x, y, z, sx, sy, sz, qx, qy, qz, s0, s1, b0, b1, b2, a0, a1, a2)
+
+
 @njit(cache=True, parallel=True, error_model="numpy")
 def evaluate_points(tx, ty, tz, t_start, t_end, t_nch, t_parent, it_start, it_src, it_kind,
-                    sx, sy, sz, qx, qy, qz, s_start, s_end, s_box, s_proxy, charges, nodes, out):
-    """Direct and proxy-source interactions into the targets' rows of out (6, m).
+                    sx, sy, sz, qx, qy, qz, s_start, s_end, s_box, s_proxy, charges, nodes, a_only, out):
+    """Direct and proxy-source interactions into the targets' rows of out (6, m); with
+    ``a_only``, A alone (rows 3-5).
 
     Each leaf target cell takes the interactions listed for it and for its ancestors
     (it_start: CSR by target cell), restricted to its own points, so threads never share rows.
@@ -411,11 +438,11 @@ def evaluate_points(tx, ty, tz, t_start, t_end, t_nch, t_parent, it_start, it_sr
             for k in range(it_start[cell], it_start[cell + 1]):
                 s = it_src[k]
                 if it_kind[k] == _DIRECT:
-                    _p2p(x, y, z, sx, sy, sz, qx, qy, qz, s_start[s], s_end[s], b0, b1, b2, a0, a1, a2)
+                    _interact(a_only, x, y, z, sx, sy, sz, qx, qy, qz, s_start[s], s_end[s], b0, b1, b2, a0, a1, a2)
                 else:
                     grid_points(s_box, s, nodes, gx, gy, gz)
                     ch = charges[s_proxy[s]]
-                    _p2p(x, y, z, gx, gy, gz, ch[:, 0], ch[:, 1], ch[:, 2], 0, p3, b0, b1, b2, a0, a1, a2)
+                    _interact(a_only, x, y, z, gx, gy, gz, ch[:, 0], ch[:, 1], ch[:, 2], 0, p3, b0, b1, b2, a0, a1, a2)
             cell = t_parent[cell]
         for i in range(w):
             out[0, t0 + i] += b0[i]
@@ -428,9 +455,10 @@ def evaluate_points(tx, ty, tz, t_start, t_end, t_nch, t_parent, it_start, it_sr
 
 @njit(cache=True, parallel=True, error_model="numpy")
 def evaluate_proxies(cells, it_start, it_src, it_kind, t_box, t_proxy, n_t_proxy,
-                     sx, sy, sz, qx, qy, qz, s_start, s_end, s_box, s_proxy, charges, nodes):
+                     sx, sy, sz, qx, qy, qz, s_start, s_end, s_box, s_proxy, charges, nodes, a_only):
     """Fields (n_t_proxy, 6, P) at the proxy targets of target cells, from proxy-target
-    interactions (source points) and proxy-both interactions (proxy sources)."""
+    interactions (source points) and proxy-both interactions (proxy sources); with
+    ``a_only``, A alone."""
     n = nodes.shape[0]
     p3 = n * n * n
     values = np.zeros((n_t_proxy, 6, p3))
@@ -449,11 +477,12 @@ def evaluate_proxies(cells, it_start, it_src, it_kind, t_box, t_proxy, n_t_proxy
         for k in range(it_start[c], it_start[c + 1]):
             s = it_src[k]
             if it_kind[k] == _PROXY_TARGETS:
-                _p2p(gx, gy, gz, sx, sy, sz, qx, qy, qz, s_start[s], s_end[s], b0, b1, b2, a0, a1, a2)
+                _interact(a_only, gx, gy, gz, sx, sy, sz, qx, qy, qz, s_start[s], s_end[s], b0, b1, b2, a0, a1, a2)
             else:
                 grid_points(s_box, s, nodes, sgx, sgy, sgz)
                 ch = charges[s_proxy[s]]
-                _p2p(gx, gy, gz, sgx, sgy, sgz, ch[:, 0], ch[:, 1], ch[:, 2], 0, p3, b0, b1, b2, a0, a1, a2)
+                _interact(a_only, gx, gy, gz, sgx, sgy, sgz, ch[:, 0], ch[:, 1], ch[:, 2], 0, p3, b0, b1, b2, a0, a1,
+                          a2)
         out = values[t_proxy[c]]
         for g in range(p3):
             out[0, g] = b0[g]
@@ -548,9 +577,10 @@ class SourceTree:
                               self.level, self.box, self.proxy, int(big.sum()), self.nodes, self.weights)
 
 
-def tree_field(targets: np.ndarray, sources: SourceTree, theta: float, leaf_size: int) -> np.ndarray:
+def tree_field(targets: np.ndarray, sources: SourceTree, theta: float, leaf_size: int,
+               a_only: bool = False) -> np.ndarray:
     """B and A (rows Bx, By, Bz, Ax, Ay, Az; shape (6, m)) of the sources at targets (m, 3),
-    without the factor mu0 / (4 pi)."""
+    without the factor mu0 / (4 pi); with ``a_only``, A alone (the B rows stay zero)."""
     src = sources
     pts = np.ascontiguousarray(targets, dtype=np.float64)
     perm, start, end, first, nch, parent, level, box = build_tree(pts, leaf_size)
@@ -562,7 +592,7 @@ def tree_field(targets: np.ndarray, sources: SourceTree, theta: float, leaf_size
     order, csr = _csr(it_t[to_points], len(count))
     evaluate_points(tx, ty, tz, start, end, nch, parent, csr, it_s[to_points][order], it_k[to_points][order],
                     src.x, src.y, src.z, src.q[0], src.q[1], src.q[2], src.start, src.end, src.box, src.proxy,
-                    src.charges, src.nodes, out)
+                    src.charges, src.nodes, a_only, out)
     t_proxy = np.full(len(count), -1, np.int64)
     big = count > src.n_proxy
     t_proxy[big] = np.arange(int(big.sum()))
@@ -570,7 +600,7 @@ def tree_field(targets: np.ndarray, sources: SourceTree, theta: float, leaf_size
         order, csr = _csr(it_t[~to_points], len(count))
         values = evaluate_proxies(np.nonzero(big)[0], csr, it_s[~to_points][order], it_k[~to_points][order], box,
                                   t_proxy, int(big.sum()), src.x, src.y, src.z, src.q[0], src.q[1], src.q[2],
-                                  src.start, src.end, src.box, src.proxy, src.charges, src.nodes)
+                                  src.start, src.end, src.box, src.proxy, src.charges, src.nodes, a_only)
         downward(values, tx, ty, tz, start, end, first, nch, level, box, t_proxy, src.nodes, src.weights, out)
     result = np.empty_like(out)
     result[:, perm] = out

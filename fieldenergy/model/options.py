@@ -27,6 +27,10 @@ class SolveOptions:
         route (the two-route cross-check).
     field_tolerance
         Relative accuracy the field route's cubature aims for.
+    aj_method
+        How the A.J double sum is evaluated: ``direct`` (every pair, each to 1e-9), ``fast``
+        (treecode with exact near pairs, about 1e-7; for 1e5 segments and more) or ``auto``
+        (fast from ``fieldenergy.run.FAST_AJ_MIN_SEGMENTS`` segments up).
     """
 
     preset: str = "default"
@@ -36,6 +40,7 @@ class SolveOptions:
     section_grid: tuple[int, int] | None = None
     field_route: bool = True
     field_tolerance: float = 1.0e-3
+    aj_method: str = "auto"
 
     def __post_init__(self) -> None:
         if self.n_levels < 1:
@@ -44,6 +49,8 @@ class SolveOptions:
             raise ValueError(f"base_level must be >= 0, got {self.base_level}")
         if self.sagitta_fraction is not None and not self.sagitta_fraction > 0:
             raise ValueError(f"sagitta_fraction must be > 0, got {self.sagitta_fraction}")
+        if self.aj_method not in AJ_METHODS:
+            raise ValueError(f"aj_method must be one of {', '.join(AJ_METHODS)}, got {self.aj_method!r}")
 
     @classmethod
     def from_preset(cls, name: str) -> SolveOptions:
@@ -58,6 +65,9 @@ class SolveOptions:
         """A copy with some settings changed; the preset name becomes ``custom``."""
         return replace(self, preset="custom", **changes)  # type: ignore[arg-type]
 
+
+#: Ways to evaluate the A.J double sum (see :class:`SolveOptions`).
+AJ_METHODS: tuple[str, ...] = ("auto", "direct", "fast")
 
 #: The named presets. ``default`` meets 1e-4 relative error on the closed-form references of
 #: the test suite; ``fast`` trades accuracy for speed; ``fine`` adds a level.

@@ -80,6 +80,7 @@ def _contract(result: Result, source: str | None) -> dict[str, Any]:
             "base_level": opts.base_level,
             "sagitta_fraction": opts.sagitta_fraction,
             "section_grid": list(opts.section_grid) if opts.section_grid else None,
+            "aj_method": opts.aj_method,
         },
         "levels": [
             {
