@@ -33,13 +33,16 @@ from fieldenergy.section_model import gmd_correction, has_rect_grid
 QUADRATURE_RELATIVE_ERROR: float = 1.0e-9
 
 #: Segments from which ``aj_method = "auto"`` sums the A.J route by the treecode. Measured
-#: (2 cores) on two close-wound helices: 4e3 segments 0.59 s direct against 0.47 s fast,
-#: 4e4 segments 19 s against 4 s; below this the direct sum's 1e-9 is worth its time.
+#: (2 cores, benchmarks/bench_inductance.py): 5e3 segments 0.65 s direct against 0.30 s fast,
+#: 2e4 segments 3.4 s against 1.3 s, 5e4 segments 17 s against 4.9 s; on close-wound helices
+#: the direct sum is slower (4e4 segments 19 s). Below this size the direct sum's 1e-9 per
+#: pair is worth its time.
 FAST_AJ_MIN_SEGMENTS: int = 20_000
 
-#: Relative error of the fast A.J sum: measured 1.8e-7 against the direct sum on a pair of
-#: close-wound helices of 4e4 segments (see tests/test_fast_inductance.py); doubled here.
-FAST_AJ_RELATIVE_ERROR: float = 4.0e-7
+#: Relative error of the fast A.J sum: measured 1.0e-8 against the direct sum on the bundled
+#: toroidal-set, 9e-8 on close-wound helices (see fieldenergy.energy.fast_inductance); the
+#: floor of the error estimate when the fast sum is used carries a margin.
+FAST_AJ_RELATIVE_ERROR: float = 1.0e-6
 
 #: The section-grid check runs at chords this many times coarser in sagitta than level 0
 #: (about 2.2 times fewer chords): the grid's error hardly depends on the chords, and the

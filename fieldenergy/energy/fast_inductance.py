@@ -15,8 +15,9 @@ summed in O(n log n):
   chain's self-inductance, rho its bend radius: below 1e-7 for SOFT_REACH = 500).
 
 The difference between L_pq and L_qp (summed from opposite sides) is reported as an
-indicator of the treecode's error; it understates it (measured 6e-8 against an error of
-1.8e-7), so the stated error of this route is the calibrated one of :data:`ORDER`.
+indicator of the treecode's error; it understates it (measured 3.6e-6 against an error of
+1.2e-5 at a cheaper setting), so the stated error of this route is the calibrated one of
+:data:`ORDER`.
 
 References
 ----------
@@ -51,12 +52,13 @@ NEAR_RATIO: float = 3.0
 SOFT_REACH: float = 500.0
 
 #: Treecode grid order, separation parameter and leaf size (see :mod:`fieldenergy.fastfield`).
-#: An inductance is a sum over all targets, so it needs less than a field map. Measured on two
-#: close-wound helices of 4e4 segments (2 cores), relative error of the matrix against
-#: p = 7, theta = 0.5 (itself 4e-11 from the direct sum, 14 s): p = 5, theta = 0.7: 1.8e-7,
-#: 4.2 s; p = 4, theta = 0.6: 3.6e-7, 3.8 s; p = 4, theta = 0.8: 3.6e-6, 2.7 s; p = 3: 6e-5.
-ORDER: int = 5
-THETA: float = 0.7
+#: Largest relative error of the coil matrix against the direct sum, measured (2 cores) on the
+#: bundled toroidal-set (9 coils, one source tree each, rectangular packs): p = 5, theta = 0.7:
+#: 1.2e-5; p = 6, theta = 0.6: 1.6e-7; p = 5, theta = 0.5: 9.6e-8; p = 6, theta = 0.5: 1.0e-8;
+#: p = 7, theta = 0.6: 6.7e-9; p = 7, theta = 0.5: 9.5e-10. On the 2e5-segment winding of
+#: benchmarks/bench_inductance.py the last three took 33, 35 and 40 s.
+ORDER: int = 6
+THETA: float = 0.5
 LEAF: int = 200
 
 #: Static chunks of rows of the near-pair kernel (its result does not depend on the threads).
