@@ -19,7 +19,7 @@ from numpy.typing import NDArray
 from fieldenergy.discretise import discretise
 from fieldenergy.energy.extrapolate import richardson
 from fieldenergy.energy.from_field import MAX_FIELD_POINTS, field_inductance
-from fieldenergy.energy.fast_inductance import fast_grouped_inductance
+from fieldenergy.energy.fast_inductance import fast_grouped_inductance, progress_steps
 from fieldenergy.energy.from_potential import grouped_inductance
 from fieldenergy.energy.route_check import route_gap
 from fieldenergy.model import Case, FilamentModel
@@ -206,7 +206,7 @@ def _coil_matrix(model: FilamentModel, label: str, progress: ProgressFactory, aj
     fil = model.filaments
     n_coils = len(model.coil_names)
     if uses_fast_sum(aj_method, fil.n_segments):
-        with progress(f"{label}: {fil.n_segments} segments (treecode)", n_coils + 1) as update:
+        with progress(f"{label}: {fil.n_segments} segments (treecode)", progress_steps(fil.n_segments, n_coils)) as update:
             matrix = fast_grouped_inductance(fil, fil.coil, n_coils, progress=update).matrix
     else:
         with progress(f"{label}: {fil.n_segments} segments", fil.n_segments) as update:

@@ -11,7 +11,7 @@ import pytest
 
 from fieldenergy.caseio import read_case
 from fieldenergy.discretise import discretise
-from fieldenergy.energy.fast_inductance import fast_grouped_inductance
+from fieldenergy.energy.fast_inductance import fast_grouped_inductance, progress_steps
 from fieldenergy.energy.from_potential import grouped_inductance
 from fieldenergy.errors import GeometryError
 from fieldenergy.model import Case, CirclePath, Circuit, Coil, RectSection, RoundSection
@@ -133,3 +133,11 @@ def test_fast_sum_matches_the_direct_sum_on_a_bundled_coil_set() -> None:
     fast = fast_grouped_inductance(fil, fil.coil, n).matrix
     scale = np.sqrt(np.outer(np.diag(direct), np.diag(direct)))
     assert np.abs((fast - direct) / scale).max() <= FAST_RTOL
+
+
+def test_progress_counts_every_step_and_the_blocks_change_nothing() -> None:
+    fil = helix_pair(6, 60)
+    seen: list[int] = []
+    with_progress = fast_grouped_inductance(fil, fil.circuit, 2, progress=seen.append).matrix
+    assert seen == list(range(1, progress_steps(fil.n_segments, 2) + 1))
+    assert relative(with_progress, grouped_inductance(fil, fil.circuit, 2)) <= FAST_RTOL

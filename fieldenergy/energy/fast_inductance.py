@@ -61,12 +61,14 @@ ORDER: int = 6
 THETA: float = 0.5
 LEAF: int = 200
 
-#: Static chunks of rows of the near-pair kernel (its result does not depend on the threads).
+#: Blocks of rows of the near-pair kernel (progress is reported after each), and static chunks
+#: of rows within a block (the result does not depend on the thread count).
+_N_BLOCKS: int = 16
 _N_CHUNKS: int = 64
 
 Array = NDArray[np.float64]
 
-__all__ = ["FastInductance", "fast_grouped_inductance"]
+__all__ = ["FastInductance", "fast_grouped_inductance", "progress_steps"]
 
 
 @dataclass(frozen=True)
@@ -92,6 +94,12 @@ def _point_sources(starts: Array, ends: Array, k: int) -> tuple[Array, Array]:
     return np.ascontiguousarray(pos), np.ascontiguousarray(chg)
 
 
+def progress_steps(n_segments: int, n_groups: int) -> int:
+    """Steps reported by :func:`fast_grouped_inductance`: one per source tree, then one per
+    block of near-pair rows."""
+    return n_groups + max(1, min(_N_BLOCKS, n_segments))
+
+
 def fast_grouped_inductance(
     filaments: Filaments,
     group: ArrayLike,
@@ -104,7 +112,7 @@ def fast_grouped_inductance(
     """Inductance matrix between groups of segments, as :func:`grouped_inductance`, in O(n log n).
 
     ``order`` and ``theta`` are the treecode's (defaults :data:`ORDER`, :data:`THETA`).
-    ``progress`` is called with the number of steps done out of n_groups + 1.
+    ``progress`` is called with the number of steps done out of :func:`progress_steps`.
 
     Raises
     ------
@@ -153,11 +161,14 @@ def fast_grouped_inductance(
     mid = 0.5 * (starts + ends)
     grid = _midpoint_grid(mid, np.full(n, NEAR_RATIO * float(lengths.max(initial=0.0))))
     near = np.zeros((n_groups, n_groups))
-    near_pair_corrections(starts, ends, weights, gmd, piece, arc, loop, piece_first, piece_count, groups, n_groups,
-                          pos, chg, NEAR_RATIO, SOFT_REACH, PAIR_RELATIVE_TOLERANCE, *grid,
-                          max(1, min(_N_CHUNKS, n)), near)
-    if progress is not None:
-        progress(n_groups + 1)
+    n_blocks = max(1, min(_N_BLOCKS, n))
+    for b in range(n_blocks):
+        r0, r1 = b * n // n_blocks, (b + 1) * n // n_blocks
+        near_pair_corrections(starts, ends, weights, gmd, piece, arc, loop, piece_first, piece_count, groups,
+                              n_groups, pos, chg, NEAR_RATIO, SOFT_REACH, PAIR_RELATIVE_TOLERANCE, *grid, r0, r1,
+                              max(1, min(_N_CHUNKS, r1 - r0)), near)
+        if progress is not None:
+            progress(n_groups + b + 1)
     total = far + near
     if not np.isfinite(total).all():
         raise GeometryError(

@@ -101,8 +101,9 @@ def _add(part, gi, gj, value, twice):
 @njit(cache=True, parallel=True, error_model="numpy")
 def near_pair_corrections(starts, ends, weights, gmd, piece, arc, loop, piece_first, piece_count, group, n_groups,
                           pos, chg, near_ratio, soft_reach, rel_tol, origin, cell, dims, cell_start, cell_segs,
-                          n_chunks, out):
-    """Add the weighted near-pair corrections w_i w_j (M_ij - points_ij) to ``out`` (H).
+                          row_begin, row_end, n_chunks, out):
+    """Add the weighted near-pair corrections w_i w_j (M_ij - points_ij) of the rows
+    row_begin <= i < row_end (each pair is taken by its lower index) to ``out`` (H).
 
     starts, ends (n, 3) m; weights, gmd (n,); piece (n,) int64 with the segments of each piece
     contiguous and in chain order (piece_first, piece_count per piece), arc and loop (n,) m as
@@ -110,14 +111,14 @@ def near_pair_corrections(starts, ends, weights, gmd, piece, arc, loop, piece_fi
     the point sources; the grid as in :func:`._fast_near.near_correction`; out (n_groups,
     n_groups) float64, added to (the pair (i, j) and (j, i) both, the self pair once).
     """
-    n = starts.shape[0]
     geom = segment_geometry(starts, ends)
     zt, nodes, wts, n_panel = _rules(rel_tol)
     partial = np.zeros((n_chunks, n_groups, n_groups))
+    n_rows = row_end - row_begin
     for c in prange(n_chunks):
         part = partial[c]
         cells = np.empty(27, np.int64)
-        for i in range(c * n // n_chunks, (c + 1) * n // n_chunks):
+        for i in range(row_begin + c * n_rows // n_chunks, row_begin + (c + 1) * n_rows // n_chunks):
             hi = geom[i, 6]
             wi = weights[i]
             gi = group[i]
