@@ -153,10 +153,9 @@ class SegmentTreeSum:
                  theta: float | None = None) -> None:
         order = TREE_ORDER if order is None else order
         self.theta = TREE_THETA if theta is None else theta
-        xs, ws = np.polynomial.legendre.leggauss(TREE_SOURCES)
+        self.src_pos, chg = segment_sources(starts, ends, TREE_SOURCES)
+        self.src_chg = np.ascontiguousarray(currents[:, None, None] * chg)
         d = ends - starts
-        self.src_pos = np.ascontiguousarray(starts[:, None, :] + 0.5 * (1.0 + xs)[None, :, None] * d[:, None, :])
-        self.src_chg = np.ascontiguousarray((0.5 * ws)[None, :, None] * (currents[:, None] * d)[:, None, :])
         self.tab = _segment_table(starts, ends, currents, radii)
         lengths = np.linalg.norm(d, axis=1)
         self.reach = np.maximum(NEAR_RATIO * lengths, NEAR_CORE_RADII * radii)
@@ -241,6 +240,15 @@ def _multipole_sum(fmm3dpy: object, eps: float, sources: Array, charges: Array, 
         pot += out.pottarg
         grad += out.gradtarg  # (3 components of A, 3 derivatives, points)
     return pot, grad
+
+
+def segment_sources(starts: Array, ends: Array, k: int) -> tuple[Array, Array]:
+    """Gauss points (n, k, 3) of straight segments and their charges (omega / 2) (b - a), (n, k, 3), m."""
+    xs, ws = np.polynomial.legendre.leggauss(k)
+    d = ends - starts
+    pos = starts[:, None, :] + 0.5 * (1.0 + xs)[None, :, None] * d[:, None, :]
+    chg = (0.5 * ws)[None, :, None] * d[:, None, :]
+    return np.ascontiguousarray(pos), np.ascontiguousarray(chg)
 
 
 def point_sources(elements: ExactElements, order: int) -> tuple[Array, Array]:

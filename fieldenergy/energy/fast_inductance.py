@@ -36,7 +36,7 @@ from numpy.typing import ArrayLike, NDArray
 from fieldenergy.constants import MU0_OVER_4PI
 from fieldenergy.energy.from_potential import PAIR_RELATIVE_TOLERANCE, _checked, _checked_group
 from fieldenergy.errors import GeometryError
-from fieldenergy.fastfield import _midpoint_grid
+from fieldenergy.fastfield import _midpoint_grid, segment_sources
 from fieldenergy.kernels._neumann_fast import near_pair_corrections
 from fieldenergy.kernels._treecode import SourceTree, tree_field
 from fieldenergy.model.filaments import Filaments
@@ -83,15 +83,6 @@ class FastInductance:
     matrix: Array
     asymmetry: float
     settings: dict[str, float]
-
-
-def _point_sources(starts: Array, ends: Array, k: int) -> tuple[Array, Array]:
-    """Gauss points (n, k, 3) of each segment and their charges (omega / 2) (b - a) (n, k, 3)."""
-    xs, ws = np.polynomial.legendre.leggauss(k)
-    d = ends - starts
-    pos = starts[:, None, :] + 0.5 * (1.0 + xs)[None, :, None] * d[:, None, :]
-    chg = (0.5 * ws)[None, :, None] * d[:, None, :]
-    return np.ascontiguousarray(pos), np.ascontiguousarray(chg)
 
 
 def progress_steps(n_segments: int, n_groups: int) -> int:
@@ -141,7 +132,7 @@ def fast_grouped_inductance(
     n_pieces = int(piece.max()) + 1 if n else 0
     piece_first = np.searchsorted(piece, np.arange(n_pieces)).astype(np.int64)
     piece_count = np.bincount(piece, minlength=n_pieces).astype(np.int64)
-    pos, chg = _point_sources(starts, ends, SOURCES)
+    pos, chg = segment_sources(starts, ends, SOURCES)
     targets = pos.reshape(-1, 3)
     target_chg = (weights[:, None, None] * chg).reshape(-1, 3)
     seg_of_point = np.repeat(np.arange(n), SOURCES)
