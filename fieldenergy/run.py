@@ -24,9 +24,10 @@ from fieldenergy.energy.from_potential import grouped_inductance
 from fieldenergy.energy.route_check import route_gap
 from fieldenergy.model import Case, FilamentModel
 from fieldenergy.model.case import Discretisation
+from fieldenergy.model.options import FIELD_ROUTE_PAIR_BUDGET as DEFAULT_FIELD_BUDGET
 from fieldenergy.model.options import SolveOptions
 from fieldenergy.model.result import LevelRecord, Result
-from fieldenergy.section_model import gmd_correction, has_rect_grid
+from fieldenergy.section_model import core_overlap_correction, gmd_correction, has_rect_grid
 
 #: Relative accuracy of one partial mutual inductance (the kernels' quadrature target); the
 #: floor of the error estimate when refinement changes nothing (all-straight conductors).
@@ -49,10 +50,11 @@ FAST_AJ_RELATIVE_ERROR: float = 1.0e-6
 #: doubled grid costs 16 times the pairs.
 SECTION_CHECK_SAGITTA_FACTOR: float = 5.0
 
-#: Budget of the field route in point-segment pairs (about a minute on 2 cores). Its cost is
-#: points x segments, so a case with many segments gets fewer cubature points; when the
-#: budget stops the cubature first, the result says so and carries the error reached.
-FIELD_ROUTE_PAIR_BUDGET: float = 6.0e10
+#: Default budget of the field route in point-segment pairs (about a minute on 2 cores; the
+#: ``field_budget`` solve option, ``--field-budget``). Its cost is points x segments, so a case with many segments
+#: gets fewer cubature points; when the budget stops the cubature first, the result says so
+#: and carries the error reached.
+FIELD_ROUTE_PAIR_BUDGET: float = DEFAULT_FIELD_BUDGET
 
 #: Fewest cubature points the field route is allowed, whatever the pair budget says.
 FIELD_ROUTE_MIN_POINTS: int = 200_000
@@ -139,28 +141,32 @@ def solve(case: Case, options: SolveOptions | None = None, progress: ProgressFac
     result = _package(case, options, model, records, coil_matrices, section_change, messages, time.perf_counter() - start)
     if options.field_route:
         base_model = discretise(case, level=options.base_level, discretisation=disc)
-        result = _with_field_route(result, base_model, options.field_tolerance, progress)
+        result = _with_field_route(result, base_model, options.field_tolerance, options.field_budget, progress)
         result = replace(result, seconds=time.perf_counter() - start)
     return result
 
 
-def _with_field_route(result: Result, model: FilamentModel, tolerance: float, progress: ProgressFactory) -> Result:
+def _with_field_route(
+    result: Result, model: FilamentModel, tolerance: float, pair_budget: float, progress: ProgressFactory
+) -> Result:
     """Add the field route (1/(2 mu0) integral of |B|^2) and its gap to the A.J route.
 
     Like with like (see :mod:`fieldenergy.energy.route_check`): the field matrix of the
-    coarsest model (``model``, the cheapest to integrate: the cost is points x segments) plus
-    the section-grid GMD correction, against the A.J raw matrix of that same level; the field
+    coarsest model (``model``, the cheapest to integrate: the cost is points x segments),
+    corrected for its overlapping pack cores (which the A.J model does not have) and plus the
+    section-grid GMD correction (:mod:`fieldenergy.section_model`), against the A.J raw matrix of that same level; the field
     route is carried to the limit with the A.J route's chord correction from that level.
     """
     with progress(f"field route: {model.filaments.n_segments} segments", 1) as update:
-        budget = max(FIELD_ROUTE_MIN_POINTS, int(FIELD_ROUTE_PAIR_BUDGET / max(model.filaments.n_segments, 1)))
+        budget = max(FIELD_ROUTE_MIN_POINTS, int(pair_budget / max(model.filaments.n_segments, 1)))
         fi = field_inductance(model.filaments, rel_tol=tolerance, max_points=min(budget, MAX_FIELD_POINTS))
         update(1)
     n_circuits = len(result.circuit_names)
-    section = circuit_matrix(np.diag(gmd_correction(model)), model.coil_circuit, n_circuits)
+    # the field route's overlapping round cores, then the grid's GMD correction (section_model)
+    section = circuit_matrix(np.diag(gmd_correction(model) - core_overlap_correction(model)), model.coil_circuit, n_circuits)
     field_level = fi.matrix + section
     aj_level = result.levels[0].inductance
-    gap = route_gap(field_level, aj_level, result.currents, fi.relative_error, result.relative_error)
+    gap = route_gap(field_level, aj_level, result.currents, fi.relative_error, result.relative_error, fi.converged)
     field_l = field_level + (result.inductance - aj_level)
     _, error, tail = fi.energy(result.currents)
     messages = result.warnings

@@ -328,3 +328,28 @@ def test_routes_agree_on_a_close_wound_helix() -> None:
     aj = grouped_inductance(fil, fil.circuit, 1)[0, 0]
     assert field.converged
     assert abs(aj / field.matrix[0, 0] - 1.0) <= ROUTE_GAP_TOLERANCE / 2
+
+
+def test_route_gap_is_inconclusive_after_a_budget_stop() -> None:
+    # a small gap proves nothing when the field route stopped above the gap tolerance
+    stopped = route_gap([[1.0 + 0.2e-3]], [[1.0]], [1.0], 5e-3, 1e-5, field_converged=False)
+    assert stopped.flagged and stopped.inconclusive and "inconclusive" in stopped.hint
+    # a budget stop below the tolerance still lets the check see a 1e-3 gap
+    fine = route_gap([[1.0 + 0.2e-3]], [[1.0]], [1.0], 5e-4, 1e-5, field_converged=False)
+    assert not fine.flagged and not fine.inconclusive
+
+
+def test_solve_flags_a_field_route_cut_short_by_its_budget(tmp_path, capsys) -> None:
+    from fieldenergy.caseio import write_case
+    from fieldenergy.cli import main
+
+    write_case(loop_case(), tmp_path / "loop")
+    args = ["solve", str(tmp_path / "loop"), "--preset", "fast", "--no-out", "--no-mechanics",
+            "--json", str(tmp_path / "r.json")]
+    # 1e6 pairs leave the cubature its minimum of points, far short of the fast preset's 1e-2 on a thin loop
+    assert main([*args, "--field-budget", "1e6"]) == 0
+    out = capsys.readouterr().out
+    assert "inconclusive" in out and "point budget" in out
+    doc = json.loads((tmp_path / "r.json").read_text())
+    assert doc["energy"]["route_gap_flag"] is True and "inconclusive" in doc["energy"]["route_gap_hint"]
+    assert doc["settings"]["field_budget_pairs"] == 1e6

@@ -12,7 +12,7 @@ from fieldenergy.cli._common import add_case_arg, add_preset_args, case_folder, 
 from fieldenergy.cli._progress import terminal_progress
 from fieldenergy.cli._tables import solve_report
 from fieldenergy.mechanics import mechanics
-from fieldenergy.model.options import AJ_METHODS
+from fieldenergy.model.options import AJ_METHODS, FIELD_ROUTE_PAIR_BUDGET
 from fieldenergy.output.mechanics_out import mechanics_document, write_mechanics_files
 from fieldenergy.output.result_json import write_result_folder, write_result_json
 from fieldenergy.run import solve
@@ -30,6 +30,11 @@ def add_args(parser: argparse.ArgumentParser) -> None:
         "--no-field-route", action="store_true", help="skip the 1/(2 mu0) integral of |B|^2 cross-check"
     )
     parser.add_argument(
+        "--field-budget", type=_positive_float, metavar="PAIRS",
+        help="field route budget in point-segment pairs (default: %(default).0e, about a minute on 2 cores)",
+        default=FIELD_ROUTE_PAIR_BUDGET,
+    )
+    parser.add_argument(
         "--aj-method", choices=list(AJ_METHODS), default="auto",
         help="A.J double sum: every pair (direct), treecode with exact near pairs (fast), or by size (default)",
     )
@@ -44,11 +49,22 @@ def add_args(parser: argparse.ArgumentParser) -> None:
     )
 
 
+def _positive_float(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a number of point-segment pairs, got {text!r}") from None
+    if not value > 0 or value == float("inf"):
+        raise argparse.ArgumentTypeError(f"expected a finite number > 0, got {text!r}")
+    return value
+
+
 def run(args: argparse.Namespace) -> int:
     options = options_from(args)
     if args.no_field_route:
         options = replace(options, field_route=False)  # a check skipped, not a custom preset
     options = replace(options, aj_method=args.aj_method)  # how, not what: the preset stays
+    options = replace(options, field_budget=args.field_budget)
     case = load(args)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")  # solve() records them in the result; shown in the report

@@ -135,7 +135,10 @@ def _route_lines(result: Result) -> list[str]:
     if result.field_inductance is None:
         return ["Field route (1/(2 mu0) integral of |B|^2): skipped"]
     share = result.tail_energy / result.field_energy if result.field_energy else math.nan
-    flag = f"  ** above {ROUTE_GAP_TOLERANCE:.0e}: {result.route_gap_hint}" if result.route_gap_flag else ""
+    flag = ""
+    if result.route_gap_flag:
+        inconclusive = max(result.route_gap, result.route_gap_matrix) <= ROUTE_GAP_TOLERANCE
+        flag = "  ** " + ("" if inconclusive else f"above {ROUTE_GAP_TOLERANCE:.0e}: ") + result.route_gap_hint
     return [
         f"  A.J route:   {result.energy:.8e} J",
         f"  field route: {result.field_energy:.8e} J  (+/- {result.field_energy_error:.2e} J; "

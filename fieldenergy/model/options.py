@@ -27,6 +27,10 @@ class SolveOptions:
         route (the two-route cross-check).
     field_tolerance
         Relative accuracy the field route's cubature aims for.
+    field_budget
+        The field route's budget in point-segment pairs (:data:`FIELD_ROUTE_PAIR_BUDGET` by
+        default); when the budget stops the cubature above the gap tolerance, the route check
+        is flagged inconclusive.
     aj_method
         How the A.J double sum is evaluated: ``direct`` (every pair, each to 1e-9), ``fast``
         (treecode with exact near pairs, about 1e-7; for 1e5 segments and more) or ``auto``
@@ -40,6 +44,7 @@ class SolveOptions:
     section_grid: tuple[int, int] | None = None
     field_route: bool = True
     field_tolerance: float = 1.0e-3
+    field_budget: float = 6.0e10  # FIELD_ROUTE_PAIR_BUDGET
     aj_method: str = "auto"
 
     def __post_init__(self) -> None:
@@ -49,6 +54,8 @@ class SolveOptions:
             raise ValueError(f"base_level must be >= 0, got {self.base_level}")
         if self.sagitta_fraction is not None and not self.sagitta_fraction > 0:
             raise ValueError(f"sagitta_fraction must be > 0, got {self.sagitta_fraction}")
+        if not 0.0 < self.field_budget < float("inf"):
+            raise ValueError(f"field_budget must be > 0 point-segment pairs, got {self.field_budget}")
         if self.aj_method not in AJ_METHODS:
             raise ValueError(f"aj_method must be one of {', '.join(AJ_METHODS)}, got {self.aj_method!r}")
 
@@ -68,6 +75,9 @@ class SolveOptions:
 
 #: Ways to evaluate the A.J double sum (see :class:`SolveOptions`).
 AJ_METHODS: tuple[str, ...] = ("auto", "direct", "fast")
+
+#: Default budget of the field route in point-segment pairs (about a minute on 2 cores).
+FIELD_ROUTE_PAIR_BUDGET: float = SolveOptions().field_budget
 
 #: The named presets. ``default`` meets 1e-4 relative error on the closed-form references of
 #: the test suite; ``fast`` trades accuracy for speed; ``fine`` adds a level.

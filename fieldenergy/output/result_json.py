@@ -81,6 +81,8 @@ def _contract(result: Result, source: str | None) -> dict[str, Any]:
             "sagitta_fraction": opts.sagitta_fraction,
             "section_grid": list(opts.section_grid) if opts.section_grid else None,
             "aj_method": opts.aj_method,
+            "field_tolerance": opts.field_tolerance if opts.field_route else None,
+            "field_budget_pairs": opts.field_budget if opts.field_route else None,
         },
         "levels": [
             {
