@@ -134,28 +134,35 @@ def solve(case: Case, options: SolveOptions | None = None, progress: ProgressFac
                     seconds=seconds,
                 )
             )
-        section_change = _section_check(case, disc, model, progress)
+        section_change, check_model, check_matrix = _section_check(case, disc, model, progress)
+        if options.field_route and check_model is None:
+            check_model = discretise(case, level=0, discretisation=_coarse_chords(disc))
+            check_matrix = _coil_matrix(check_model, "field-route model (A.J)", progress)
     messages = tuple(dict.fromkeys(str(w.message) for w in caught))
     for w in caught:
         warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
     result = _package(case, options, model, records, coil_matrices, section_change, messages, time.perf_counter() - start)
     if options.field_route:
-        base_model = discretise(case, level=options.base_level, discretisation=disc)
-        result = _with_field_route(result, base_model, options.field_tolerance, options.field_budget, progress)
+        assert check_model is not None and check_matrix is not None
+        aj_check = circuit_matrix(check_matrix, check_model.coil_circuit, len(case.circuits))
+        result = _with_field_route(result, check_model, aj_check, options.field_tolerance, options.field_budget, progress)
         result = replace(result, seconds=time.perf_counter() - start)
     return result
 
 
 def _with_field_route(
-    result: Result, model: FilamentModel, tolerance: float, pair_budget: float, progress: ProgressFactory
+    result: Result, model: FilamentModel, aj_level: NDArray[np.float64], tolerance: float, pair_budget: float,
+    progress: ProgressFactory,
 ) -> Result:
     """Add the field route (1/(2 mu0) integral of |B|^2) and its gap to the A.J route.
 
-    Like with like (see :mod:`fieldenergy.energy.route_check`): the field matrix of the
-    coarsest model (``model``, the cheapest to integrate: the cost is points x segments),
+    Like with like (see :mod:`fieldenergy.energy.route_check`): the field matrix of a
+    coarse-chord model (``model``: the section check's, chords SECTION_CHECK_SAGITTA_FACTOR times
+    coarser in sagitta than level 0, since the field route's cost is points x segments),
     corrected for its overlapping pack cores (which the A.J model does not have) and plus the
-    section-grid GMD correction (:mod:`fieldenergy.section_model`), against the A.J raw matrix of that same level; the field
-    route is carried to the limit with the A.J route's chord correction from that level.
+    section-grid GMD correction (:mod:`fieldenergy.section_model`), against the A.J matrix of
+    that same model (``aj_level``, with the same GMD correction); the field route is carried to
+    the limit with the A.J route's chord correction from that model.
     """
     with progress(f"field route: {model.filaments.n_segments} segments", 1) as update:
         budget = max(FIELD_ROUTE_MIN_POINTS, int(pair_budget / max(model.filaments.n_segments, 1)))
@@ -165,7 +172,6 @@ def _with_field_route(
     # the field route's overlapping round cores, then the grid's GMD correction (section_model)
     section = circuit_matrix(np.diag(gmd_correction(model) - core_overlap_correction(model)), model.coil_circuit, n_circuits)
     field_level = fi.matrix + section
-    aj_level = result.levels[0].inductance
     gap = route_gap(field_level, aj_level, result.currents, fi.relative_error, result.relative_error, fi.converged)
     field_l = field_level + (result.inductance - aj_level)
     _, error, tail = fi.energy(result.currents)
@@ -220,22 +226,30 @@ def _coil_matrix(model: FilamentModel, label: str, progress: ProgressFactory, aj
     return matrix + np.diag(gmd_correction(model))
 
 
-def _section_check(case: Case, disc: Discretisation, model: FilamentModel, progress: ProgressFactory) -> NDArray[np.float64] | None:
-    """|change| of the coil matrix when every rectangular grid is doubled, at coarse chords.
+def _coarse_chords(disc: Discretisation) -> Discretisation:
+    """The settings with chords :data:`SECTION_CHECK_SAGITTA_FACTOR` times coarser in sagitta."""
+    if disc.sagitta is not None:
+        return replace(disc, sagitta=disc.sagitta * SECTION_CHECK_SAGITTA_FACTOR)
+    return replace(disc, sagitta_fraction=min(0.5, disc.sagitta_fraction * SECTION_CHECK_SAGITTA_FACTOR))
 
-    ``None`` when no coil has a rectangular grid (round sections carry no grid error).
+
+def _section_check(
+    case: Case, disc: Discretisation, model: FilamentModel, progress: ProgressFactory
+) -> tuple[NDArray[np.float64] | None, FilamentModel | None, NDArray[np.float64] | None]:
+    """|change| of the coil matrix when every rectangular grid is doubled, at coarse chords;
+    with the coarse-chord model at the case's grid and its coil matrix (the field route's model).
+
+    ``(None, None, None)`` when no coil has a rectangular grid (round sections carry no grid error).
     """
     if not has_rect_grid(model):
-        return None
-    if disc.sagitta is not None:
-        coarse = replace(disc, sagitta=disc.sagitta * SECTION_CHECK_SAGITTA_FACTOR)
-    else:
-        coarse = replace(disc, sagitta_fraction=min(0.5, disc.sagitta_fraction * SECTION_CHECK_SAGITTA_FACTOR))
+        return None, None, None
+    coarse = _coarse_chords(disc)
     matrices = []
+    models = []
     for refinement in (1, 2):
-        grid_model = discretise(case, level=0, discretisation=replace(coarse, section_refinement=refinement))
-        matrices.append(_coil_matrix(grid_model, f"section check x{refinement}", progress))
-    return np.abs(matrices[1] - matrices[0])
+        models.append(discretise(case, level=0, discretisation=replace(coarse, section_refinement=refinement)))
+        matrices.append(_coil_matrix(models[-1], f"section check x{refinement}", progress))
+    return np.abs(matrices[1] - matrices[0]), models[0], matrices[0]
 
 
 def _package(

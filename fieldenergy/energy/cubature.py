@@ -138,6 +138,7 @@ def adaptive_octree(
     n: int = 3,
     max_points: int = 20_000_000,
     max_generations: int = 40,
+    total_error: Callable[[Array, Array], float] | None = None,
 ) -> CubatureResult:
     """Integrate ``f`` over the union of the given cells, refining until the error is small.
 
@@ -156,6 +157,11 @@ def adaptive_octree(
         Gauss points per axis in each cell.
     max_points, max_generations
         Budget; when it runs out the result carries ``converged=False``.
+    total_error
+        ``total_error(delta, total)``: the error compared with ``tol``, from the same
+        per-cell differences (default: the sum of ``cell_error``). An integrand of several
+        components may be judged component by component (each component's own sum) while
+        cells are still marked by ``cell_error``, which can only be larger.
 
     Examples
     --------
@@ -173,10 +179,12 @@ def adaptive_octree(
     for _ in range(max_generations + 1):
         fine = kids.sum(axis=1)
         total = fine.sum(axis=0)
-        err = cell_error((fine - coarse) / CHILD_ERROR_RATIO, total)
-        total_err = float(err.sum())
+        delta = (fine - coarse) / CHILD_ERROR_RATIO
+        err = cell_error(delta, total)
+        total_err = float(err.sum()) if total_error is None else total_error(delta, total)
         converged = total_err <= tol
-        mark = _doerfler(err, MARKING_FRACTION * (total_err - 0.5 * tol))
+        # the marked cells carry the share of the cell errors that the excess is of the total
+        mark = _doerfler(err, MARKING_FRACTION * float(err.sum()) * max(0.0, 1.0 - 0.5 * tol / total_err))
         if converged or n_points + 64 * int(mark.sum()) * q_rule > max_points:
             break
         # Marked leaves are replaced by their children, whose own rules are already known.

@@ -1,8 +1,9 @@
 """The two-route cross-check: the field route's matrix against the A.J route's, like with like.
 
-Both routes see the same discretised model. The A.J route's raw matrix at one level (the
-coarsest of the solve, with the section-grid GMD correction, a model correction that
-applies to both routes) is compared with the field route's matrix of that same model plus
+Both routes see the same discretised model. The A.J route's raw matrix of one model (the
+section check's: chords five times coarser in sagitta than the solve's coarsest level, the
+cheapest to integrate; with the section-grid GMD correction, a model correction that applies
+to both routes) is compared with the field route's matrix of that same model plus
 the same correction. One difference between the models is known in closed form and removed
 first: the field route's round pack cores overlap their neighbours, which the A.J route's
 centre-distance mutuals do not see (:func:`fieldenergy.section_model.core_overlap_correction`).
