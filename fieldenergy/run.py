@@ -165,8 +165,8 @@ def _with_field_route(
     the limit with the A.J route's chord correction from that model.
     """
     with progress(f"field route: {model.filaments.n_segments} segments", 1) as update:
-        budget = max(FIELD_ROUTE_MIN_POINTS, int(pair_budget / max(model.filaments.n_segments, 1)))
-        fi = field_inductance(model.filaments, rel_tol=tolerance, max_points=min(budget, MAX_FIELD_POINTS))
+        budget = min(MAX_FIELD_POINTS, max(FIELD_ROUTE_MIN_POINTS, int(pair_budget / max(model.filaments.n_segments, 1))))
+        fi = field_inductance(model.filaments, rel_tol=tolerance, max_points=budget)
         update(1)
     n_circuits = len(result.circuit_names)
     # the field route's overlapping round cores, then the grid's GMD correction (section_model)
@@ -224,6 +224,17 @@ def _coil_matrix(model: FilamentModel, label: str, progress: ProgressFactory, aj
         with progress(f"{label}: {fil.n_segments} segments", fil.n_segments) as update:
             matrix = grouped_inductance(fil, fil.coil, n_coils, progress=update)
     return matrix + np.diag(gmd_correction(model))
+
+
+def field_route_model(case: Case, options: SolveOptions | None = None) -> FilamentModel:
+    """The model the field route integrates in :func:`solve` (coarse chords, the case's grid)."""
+    return discretise(case, level=0, discretisation=_coarse_chords(settings_for(case, options or SolveOptions())))
+
+
+def field_route_points(model: FilamentModel, options: SolveOptions | None = None) -> int:
+    """The field route's point budget in :func:`solve`: the pair budget over the model's segments."""
+    pairs = (options or SolveOptions()).field_budget
+    return min(MAX_FIELD_POINTS, max(FIELD_ROUTE_MIN_POINTS, int(pairs / max(model.filaments.n_segments, 1))))
 
 
 def _coarse_chords(disc: Discretisation) -> Discretisation:

@@ -375,3 +375,22 @@ def test_solve_flags_a_field_route_cut_short_by_its_budget(tmp_path, capsys) -> 
     doc = json.loads((tmp_path / "r.json").read_text())
     assert doc["energy"]["route_gap_flag"] is True and "inconclusive" in doc["energy"]["route_gap_hint"]
     assert doc["settings"]["field_budget_pairs"] == 1e6
+
+
+def test_solve_integrates_a_coarse_chord_model_like_with_like() -> None:
+    """The field route's model has coarser chords than the solve's levels (it is the cheaper
+    to integrate), and the route gap is measured against the A.J route on that same model."""
+    from fieldenergy.energy import grouped_inductance
+    from fieldenergy.run import field_route_model, solve
+
+    case = loop_case()
+    options = SolveOptions.from_preset("default")
+    model = field_route_model(case, options)
+    result = solve(case, options)
+    assert model.filaments.n_segments < result.levels[0].n_segments
+    fil = model.filaments
+    aj = grouped_inductance(fil, fil.circuit, 1)[0, 0]
+    field = field_inductance(fil, rel_tol=options.field_tolerance)
+    # the same model and tolerance give the same field matrix; the gap is between the raw models
+    assert result.route_gap == pytest.approx(abs(field.matrix[0, 0] / aj - 1), rel=1e-9, abs=1e-12)
+    assert result.route_gap <= ROUTE_GAP_TOLERANCE
