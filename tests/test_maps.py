@@ -333,3 +333,33 @@ def test_straight_pieces_match_the_finite_wire_formula() -> None:
         ref += 1e-7 * 7.0 * (cos_diff / rho**2)[:, None] * perp
     err = np.linalg.norm(b - ref, axis=1) / np.linalg.norm(ref, axis=1)
     assert err.max() < FAR_RTOL, f"largest relative error {err.max():.2e}"
+
+
+def test_pack_filaments_turn_saddle_corners_at_the_mitre() -> None:
+    """A rectangular pack on a saddle (axial straights meeting arcs at right angles): each
+    filament off the centre line turns the corner at the mitre point. The exact-path map,
+    at points farther than 5 % of the coil size from the winding, converges with the model's
+    chords (line filaments, refined six levels) at second order: measured 9.8e-7 at level 6
+    (without the jog from an arc's offset end to the mitre point the map was 8 % off)."""
+    from fieldenergy.kernels._biot_savart import b_from_segments
+    from fieldenergy.model import Discretisation, RectSection, SaddlePath
+
+    saddle = SaddlePath(0.15, 0.45, 2.0, [0, 0, 0], [0, 0, 1], [1, 0, 0])
+    coil = Coil("s", "c", RectSection(0.02, 0.012), saddle, turns=10)
+    case = Case("s", (Circuit("c", 100.0),), (coil,), Discretisation(section_grid=(3, 2)))
+    corner = np.array([0.15 * math.cos(1.0), 0.15 * math.sin(1.0), 0.225])
+    rng = np.random.default_rng(1)
+    dirs = rng.normal(size=(1500, 3))
+    pts = corner + dirs / np.linalg.norm(dirs, axis=1)[:, None] * rng.uniform(0.03, 0.08, (1500, 1))
+    chords = discretise(case, level=6).filaments
+    d = chords.ends - chords.starts
+    far = np.ones(len(pts), dtype=bool)
+    for k, p in enumerate(pts):
+        t = np.clip(((p - chords.starts) * d).sum(axis=1) / (d * d).sum(axis=1), 0.0, 1.0)
+        far[k] = np.min(np.linalg.norm(p - chords.starts - t[:, None] * d, axis=1)) > 0.05 * 0.45
+    pts = np.ascontiguousarray(pts[far][:150])
+    b, _ = exact_field(pts, exact_elements(case, discretise(case)))
+    ref = np.empty_like(pts)
+    b_from_segments(pts, chords.starts, chords.ends, chords.currents(case.currents), np.zeros(chords.n_segments), ref)
+    err = np.linalg.norm(b - ref, axis=1) / np.linalg.norm(ref, axis=1)
+    assert len(pts) == 150 and err.max() < 3e-6, f"largest relative difference {err.max():.2e}"

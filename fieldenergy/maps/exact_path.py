@@ -34,6 +34,10 @@ FAR_RATIO: float = 2.0
 #: sub-chords, whose sagitta is 1/MAX_SUBDIVISIONS^2 of the element's.
 MAX_SUBDIVISIONS: int = 64
 
+#: A curved element's end is joined to its segment's end by a straight jog when they are
+#: farther apart than this fraction of the segment (only at corners: see exact_elements).
+JOG_TOLERANCE: float = 1.0e-9
+
 #: Points per kernel call: bounds scratch memory and paces progress reports.
 CHUNK_POINTS: int = 32768
 
@@ -111,15 +115,30 @@ def exact_elements(case: Case, model: FilamentModel, order: int = GAUSS_ORDER) -
         if len(idx) == 0:
             continue
         half = 0.5 * (fil.t1[idx] - fil.t0[idx])
-        t = mid[~is_straight][:, None] + half[:, None] * xg[None, :]
-        p = np.repeat(piece, order)
+        # Gauss nodes, then the two ends of each element's parameter interval
+        t = mid[~is_straight][:, None] + half[:, None] * np.concatenate([xg, [-1.0, 1.0]])[None, :]
+        q = order + 2
+        p = np.repeat(piece, q)
         pos = curve.position(t.ravel(), p)
         offset = model.filament_offset[fil.filament[idx]]
         if np.any(offset != 0.0):
             e_w, e_h = section_frame(curve, t.ravel(), references[c], p)
-            pos = pos + np.repeat(offset[:, 0], order)[:, None] * e_w + np.repeat(offset[:, 1], order)[:, None] * e_h
-        nodes = pos.reshape(len(idx), order, 3)
+            pos = pos + np.repeat(offset[:, 0], q)[:, None] * e_w + np.repeat(offset[:, 1], q)[:, None] * e_h
+        pos = pos.reshape(len(idx), q, 3)
+        nodes = pos[:, :order]
         parts.append((nodes, currents[idx], fil.radii[idx]))
+        # Where the path has a corner, a filament off the centre line turns it at the mitre
+        # point (the model's segment end), not where its offset path ends: a straight jog
+        # joins the two, so the current path is continuous (as the model's chords are, in
+        # their limit). Elsewhere the two points agree to rounding and no jog is added.
+        for own, exact, sign in ((fil.starts[idx], pos[:, order], 1.0), (fil.ends[idx], pos[:, order + 1], -1.0)):
+            gap = np.linalg.norm(own - exact, axis=1)
+            jog = gap > JOG_TOLERANCE * np.linalg.norm(fil.ends[idx] - fil.starts[idx], axis=1)
+            if jog.any():
+                a, b = (own[jog], exact[jog]) if sign > 0 else (exact[jog], own[jog])
+                d = b - a
+                jog_nodes = a[:, None, :] + 0.5 * (1.0 + xg)[None, :, None] * d[:, None, :]
+                parts.append((jog_nodes, currents[idx][jog], fil.radii[idx][jog]))
     s = straight_mask
     d = fil.ends[s] - fil.starts[s]
     parts.append((fil.starts[s][:, None, :] + 0.5 * (1.0 + xg)[None, :, None] * d[:, None, :], currents[s], fil.radii[s]))
