@@ -190,6 +190,8 @@ def _with_field_route(
         route_gap_flag=gap.flagged,
         route_gap_hint=gap.hint,
         field_seconds=fi.seconds,
+        field_segments=model.filaments.n_segments,
+        field_points=fi.n_points,
         warnings=messages,
     )
 

@@ -239,6 +239,7 @@ def test_solve_reports_both_routes_and_json_keys() -> None:
     energy = json.loads(json.dumps(result_to_dict(result)))["energy"]
     assert {"total_J", "aj_J", "field_J", "route_gap", "tail_J", "route_gap_flag"} <= set(energy)
     assert energy["route_gap_flag"] is False
+    assert 0 < energy["field_segments"] < result.levels[0].n_segments and energy["field_points"] > 0
     skipped = solve(loop_case(), SolveOptions.from_preset("fast").with_changes(field_route=False))
     assert skipped.field_inductance is None and math.isnan(skipped.route_gap)
     assert result_to_dict(skipped)["energy"]["field_J"] is None

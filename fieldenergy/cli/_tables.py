@@ -142,7 +142,8 @@ def _route_lines(result: Result) -> list[str]:
     return [
         f"  A.J route:   {result.energy:.8e} J",
         f"  field route: {result.field_energy:.8e} J  (+/- {result.field_energy_error:.2e} J; "
-        f"outside the box {share:.2%}; {result.field_seconds:.2f} s)",
+        f"outside the box {share:.2%}; {result.field_segments} segments, "
+        f"{result.field_points / 1e6:.1f}M points, {result.field_seconds:.2f} s)",
         f"  route gap:   {result.route_gap:.2e} (energy), {result.route_gap_matrix:.2e} (matrix entries){flag}",
     ]
 

@@ -74,6 +74,9 @@ class Result:
         Whether a gap exceeds the tolerance, and which route to refine.
     field_seconds
         Wall time of the field route (s).
+    field_segments, field_points
+        Segments of the model the field route integrated (coarser chords than the solve's
+        levels) and its integrand evaluations (points x circuits); 0 when skipped.
     """
 
     title: str
@@ -103,6 +106,8 @@ class Result:
     route_gap_flag: bool = False
     route_gap_hint: str = ""
     field_seconds: float = math.nan
+    field_segments: int = 0
+    field_points: int = 0
 
     @property
     def coupling(self) -> NDArray[np.float64]:

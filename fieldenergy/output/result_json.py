@@ -116,6 +116,8 @@ def _energy_entry(result: Result) -> dict[str, Any]:
     }
     if result.field_inductance is not None:
         entry["field_matrix_H"] = result.field_inductance.tolist()
+        entry["field_segments"] = result.field_segments
+        entry["field_points"] = result.field_points
     if result.route_gap_flag:
         entry["route_gap_hint"] = result.route_gap_hint
     return entry
