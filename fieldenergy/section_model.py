@@ -25,6 +25,7 @@ relation, from the exact GMD of two discs, so the two routes are compared like w
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import NDArray
@@ -49,30 +50,55 @@ def grid_log_gmd(offsets: NDArray[np.float64], shares: NDArray[np.float64], self
     return float(shares @ np.log(dist) @ shares)
 
 
+@dataclass(frozen=True, slots=True)
+class _Grid:
+    """One coil instance's filament grid across a rectangular section."""
+
+    coil: int
+    section: RectSection
+    offsets: NDArray[np.float64]  # (f, 2) m, in the section frame
+    shares: NDArray[np.float64]  # (f,) of the ampere-turns
+    gmd: NDArray[np.float64]  # (f,) m, each filament's own GMD
+    radii: NDArray[np.float64]  # (f,) m, each filament's core radius
+    turns: float
+    mean_length: float  # m, conductor length per turn
+
+    def log_gmd_change(self, log_gmd_change: float) -> float:
+        """The self-inductance change (H) for a change of the section's ln GMD:
+        dL/d(ln g) = -mu0 N^2 l / (2 pi) (module docstring)."""
+        return -MU0 / (2.0 * np.pi) * self.turns**2 * self.mean_length * log_gmd_change
+
+
+def _grids(model: FilamentModel) -> list[_Grid]:
+    """The coil instances with a rectangular section cut into more than one filament."""
+    fil = model.filaments
+    _, first = np.unique(fil.filament, return_index=True)
+    grids = []
+    for coil, section in enumerate(model.coil_sections):
+        chains = np.flatnonzero(model.filament_coil == coil)
+        if not isinstance(section, RectSection) or len(chains) < 2:
+            continue
+        rows = first[chains]
+        turns = float(np.sum(fil.weights[rows]))
+        seg = fil.coil == coil
+        lengths = np.linalg.norm(fil.ends[seg] - fil.starts[seg], axis=1)
+        mean_length = float(np.sum(lengths * fil.weights[seg])) / turns
+        grids.append(_Grid(coil, section, model.filament_offset[chains], fil.weights[rows] / turns, fil.gmd[rows],
+                           fil.radii[rows], turns, mean_length))
+    return grids
+
+
 def gmd_correction(model: FilamentModel) -> NDArray[np.float64]:
     """Correction (H) to add to each coil instance's self-inductance for its section grid.
 
     Zero for round sections (one filament with the exact GMD of a circle) and for a
     rectangular section of one filament (its GMD is exact).
     """
-    fil = model.filaments
-    _, first = np.unique(fil.filament, return_index=True)
     correction = np.zeros(len(model.coil_names))
-    for coil, section in enumerate(model.coil_sections):
-        if not isinstance(section, RectSection):
-            continue
-        chains = np.flatnonzero(model.filament_coil == coil)
-        if len(chains) < 2:
-            continue
-        rows = first[chains]
-        turns = float(np.sum(fil.weights[rows]))
-        shares = fil.weights[rows] / turns
-        log_grid = grid_log_gmd(model.filament_offset[chains], shares, fil.gmd[rows])
-        log_exact = float(np.log(rect_gmd(section.width, section.height)))
-        seg = fil.coil == coil
-        lengths = np.linalg.norm(fil.ends[seg] - fil.starts[seg], axis=1)
-        mean_length = float(np.sum(lengths * fil.weights[seg])) / turns
-        correction[coil] = -MU0 / (2.0 * np.pi) * turns**2 * mean_length * (log_exact - log_grid)
+    for grid in _grids(model):
+        log_grid = grid_log_gmd(grid.offsets, grid.shares, grid.gmd)
+        log_exact = float(np.log(rect_gmd(grid.section.width, grid.section.height)))
+        correction[grid.coil] = grid.log_gmd_change(log_exact - log_grid)
     return correction
 
 
@@ -128,30 +154,14 @@ def core_overlap_correction(model: FilamentModel) -> NDArray[np.float64]:
     Nonzero only for rectangular sections of several filaments whose round cores overlap
     (module docstring); add its negative to the field route's matrix to compare like with like.
     """
-    fil = model.filaments
-    _, first = np.unique(fil.filament, return_index=True)
     correction = np.zeros(len(model.coil_names))
-    for coil, section in enumerate(model.coil_sections):
-        if not isinstance(section, RectSection):
-            continue
-        chains = np.flatnonzero(model.filament_coil == coil)
-        if len(chains) < 2:
-            continue
-        rows = first[chains]
-        turns = float(np.sum(fil.weights[rows]))
-        shares = fil.weights[rows] / turns
-        offsets = model.filament_offset[chains]
-        radii = fil.radii[rows]
+    for grid in _grids(model):
         change = 0.0
-        for f in range(len(chains)):
-            for g in range(f + 1, len(chains)):
-                d = float(np.hypot(*(offsets[f] - offsets[g])))
-                if d < radii[f] + radii[g]:
-                    change += 2.0 * shares[f] * shares[g] * (disc_log_gmd(d, radii[f], radii[g]) - math.log(d))
-        if change == 0.0:
-            continue
-        seg = fil.coil == coil
-        lengths = np.linalg.norm(fil.ends[seg] - fil.starts[seg], axis=1)
-        mean_length = float(np.sum(lengths * fil.weights[seg])) / turns
-        correction[coil] = -MU0 / (2.0 * np.pi) * turns**2 * mean_length * change
+        for f in range(len(grid.shares)):
+            for g in range(f + 1, len(grid.shares)):
+                d = float(np.hypot(*(grid.offsets[f] - grid.offsets[g])))
+                if d < grid.radii[f] + grid.radii[g]:
+                    excess = disc_log_gmd(d, grid.radii[f], grid.radii[g]) - math.log(d)
+                    change += 2.0 * grid.shares[f] * grid.shares[g] * excess
+        correction[grid.coil] = grid.log_gmd_change(change)
     return correction

@@ -13,7 +13,7 @@ from types import FrameType
 
 from fieldenergy.batch import BatchSummary, ClusterAddress, run_batch
 from fieldenergy.cli import _progress
-from fieldenergy.cli._common import _positive_int, add_preset_args, options_from
+from fieldenergy.cli._common import _positive_int, add_preset_args, options_from, positive_number
 from fieldenergy.cli._tables import solve_report
 from fieldenergy.model.options import SolveOptions
 
@@ -31,7 +31,7 @@ def add_args(parser: argparse.ArgumentParser) -> None:
     add_preset_args(parser)
     parser.add_argument("--jobs", type=_positive_int, metavar="N",
                         help=f"local worker processes (default: the number of cores, {os.cpu_count()} here)")
-    parser.add_argument("--timeout", type=_positive_seconds, metavar="SECONDS",
+    parser.add_argument("--timeout", type=positive_number("a number of seconds"), metavar="SECONDS",
                         help="time limit of one case's solve; an overrunning case is stopped and marked 'timeout'")
     parser.add_argument("--force", action="store_true", help="solve every case, even those whose result is up to date")
     parser.add_argument("--no-field-route", dest="no_field_route", action="store_true",
@@ -42,16 +42,6 @@ def add_args(parser: argparse.ArgumentParser) -> None:
     where.add_argument(
         "--scheduler-file", metavar="FILE", help="solve on the Dask cluster named in this scheduler file"
     )
-
-
-def _positive_seconds(text: str) -> float:
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a number of seconds > 0, got {text!r}") from None
-    if not value > 0 or value == float("inf"):
-        raise argparse.ArgumentTypeError(f"expected a number of seconds > 0, got {text!r}")
-    return value
 
 
 def run(args: argparse.Namespace) -> int:

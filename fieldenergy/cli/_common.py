@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import argparse
+import math
+from collections.abc import Callable
 from pathlib import Path
 
 from fieldenergy.caseio import read_case
@@ -31,6 +33,21 @@ def _positive_int(text: str) -> int:
     if value < 1:
         raise argparse.ArgumentTypeError(f"expected a whole number >= 1, got {value}")
     return value
+
+
+def positive_number(what: str) -> Callable[[str], float]:
+    """An argparse ``type`` for a finite number > 0; ``what`` names it in the message."""
+
+    def parse(text: str) -> float:
+        try:
+            value = float(text)
+        except ValueError:
+            value = math.nan
+        if not 0.0 < value < math.inf:
+            raise argparse.ArgumentTypeError(f"expected {what} > 0, got {text!r}")
+        return value
+
+    return parse
 
 
 def options_from(args: argparse.Namespace) -> SolveOptions:

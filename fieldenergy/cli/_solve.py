@@ -8,7 +8,7 @@ from dataclasses import replace
 from functools import partial
 from pathlib import Path
 
-from fieldenergy.cli._common import add_case_arg, add_preset_args, case_folder, load, options_from
+from fieldenergy.cli._common import add_case_arg, add_preset_args, case_folder, load, options_from, positive_number
 from fieldenergy.cli._progress import terminal_progress
 from fieldenergy.cli._tables import solve_report
 from fieldenergy.mechanics import mechanics
@@ -30,7 +30,7 @@ def add_args(parser: argparse.ArgumentParser) -> None:
         "--no-field-route", action="store_true", help="skip the 1/(2 mu0) integral of |B|^2 cross-check"
     )
     parser.add_argument(
-        "--field-budget", type=_positive_float, metavar="PAIRS",
+        "--field-budget", type=positive_number("a number of point-segment pairs"), metavar="PAIRS",
         help="field route budget in point-segment pairs (default: %(default).0e, about a minute on 2 cores)",
         default=FIELD_ROUTE_PAIR_BUDGET,
     )
@@ -47,16 +47,6 @@ def add_args(parser: argparse.ArgumentParser) -> None:
     parser.add_argument(
         "--torque-about", nargs=3, type=float, metavar=("X", "Y", "Z"), help="point (m) for torques (default: each coil's centroid)"
     )
-
-
-def _positive_float(text: str) -> float:
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a number of point-segment pairs, got {text!r}") from None
-    if not value > 0 or value == float("inf"):
-        raise argparse.ArgumentTypeError(f"expected a finite number > 0, got {text!r}")
-    return value
 
 
 def run(args: argparse.Namespace) -> int:
