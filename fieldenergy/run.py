@@ -164,10 +164,11 @@ def _with_field_route(
     that same model (``aj_level``, with the same GMD correction); the field route is carried to
     the limit with the A.J route's chord correction from that model.
     """
-    with progress(f"field route: {model.filaments.n_segments} segments", 1) as update:
+    with progress(f"field route: {model.filaments.n_segments} segments (% of an estimate)", 100) as update:
         budget = min(MAX_FIELD_POINTS, max(FIELD_ROUTE_MIN_POINTS, int(pair_budget / max(model.filaments.n_segments, 1))))
-        fi = field_inductance(model.filaments, rel_tol=tolerance, max_points=budget)
-        update(1)
+        fi = field_inductance(model.filaments, rel_tol=tolerance, max_points=budget,
+                              progress=lambda share: update(int(100 * share)))
+        update(100)
     n_circuits = len(result.circuit_names)
     # the field route's overlapping round cores, then the grid's GMD correction (section_model)
     section = circuit_matrix(np.diag(gmd_correction(model) - core_overlap_correction(model)), model.coil_circuit, n_circuits)

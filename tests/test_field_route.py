@@ -417,3 +417,14 @@ def test_solve_cross_checks_odd_geometries_with_its_coarse_chord_model() -> None
         result = solve(Case(coil.name, (Circuit("c", 10.0),), (coil,), grid), options)
         assert result.field_segments <= result.levels[0].n_segments
         assert result.route_gap <= ROUTE_GAP_TOLERANCE and not result.route_gap_flag, (coil.name, result.route_gap)
+
+
+def test_field_route_reports_its_progress() -> None:
+    """After each refinement generation: a share of the work between 0 and 1 that never goes
+    back, and 1 once the tolerance is met."""
+    fil = trefoil(48, 3.0e-3)
+    shares: list[float] = []
+    result = field_inductance(fil, rel_tol=1e-2, progress=shares.append)
+    assert result.converged and len(shares) >= 2
+    assert all(0.0 <= a <= b <= 1.0 for a, b in zip(shares, shares[1:]))
+    assert shares[-1] == 1.0

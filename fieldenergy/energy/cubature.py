@@ -139,6 +139,7 @@ def adaptive_octree(
     max_points: int = 20_000_000,
     max_generations: int = 40,
     total_error: Callable[[Array, Array], float] | None = None,
+    on_generation: Callable[[int, float], None] | None = None,
 ) -> CubatureResult:
     """Integrate ``f`` over the union of the given cells, refining until the error is small.
 
@@ -162,6 +163,8 @@ def adaptive_octree(
         per-cell differences (default: the sum of ``cell_error``). An integrand of several
         components may be judged component by component (each component's own sum) while
         cells are still marked by ``cell_error``, which can only be larger.
+    on_generation
+        Called after each generation with the points spent so far and the total error.
 
     Examples
     --------
@@ -183,6 +186,8 @@ def adaptive_octree(
         err = cell_error(delta, total)
         total_err = float(err.sum()) if total_error is None else total_error(delta, total)
         converged = total_err <= tol
+        if on_generation is not None:
+            on_generation(n_points, total_err)
         # the marked cells carry the share of the cell errors that the excess is of the total
         mark = _doerfler(err, MARKING_FRACTION * float(err.sum()) * max(0.0, 1.0 - 0.5 * tol / total_err))
         if converged or n_points + 64 * int(mark.sum()) * q_rule > max_points:

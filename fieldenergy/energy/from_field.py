@@ -212,7 +212,11 @@ def _seed_rule(filaments: Filaments) -> Callable[[Array, Array], NDArray[np.bool
 
 
 def field_inductance(
-    filaments: Filaments, *, rel_tol: float = FIELD_RELATIVE_TOLERANCE, max_points: int = MAX_FIELD_POINTS
+    filaments: Filaments,
+    *,
+    rel_tol: float = FIELD_RELATIVE_TOLERANCE,
+    max_points: int = MAX_FIELD_POINTS,
+    progress: Callable[[float], None] | None = None,
 ) -> FieldInductance:
     """Circuit inductance matrix of the filaments by integrating |B|^2 over all space.
 
@@ -224,6 +228,10 @@ def field_inductance(
         Target relative error of the matrix (largest entry error over sqrt(L_pp L_qq)).
     max_points
         Budget of integrand evaluations; past it the result has ``converged=False``.
+    progress
+        Called after each refinement generation with the share of the work done, 0 to 1:
+        the larger of the budget spent and the error's progress from its first value towards
+        the tolerance, on a log scale (an estimate: the cubature does not know its end).
 
     Returns
     -------
@@ -265,9 +273,22 @@ def field_inductance(
         # the largest entry's own error, as reported in relative_error (cells are marked by cell_error)
         return float(np.max(np.abs(delta).sum(axis=0) / scale(total)))
 
+    near_tol = NEAR_TOLERANCE_SHARE * rel_tol
+    first: list[float] = []
+    done = 0.0
+
+    def on_generation(n_points: int, error: float) -> None:
+        nonlocal done
+        if progress is None:
+            return
+        first.append(first[0] if first else error)
+        towards = math.log(first[0] / error) / math.log(first[0] / near_tol) if first[0] > near_tol and error > 0 else 1.0
+        done = max(done, min(1.0, n_points / max_points), min(1.0, max(0.0, towards)))
+        progress(done)
+
     near = adaptive_octree(
-        f, *cells, cell_error, tol=NEAR_TOLERANCE_SHARE * rel_tol, n=CELL_GAUSS_POINTS, max_points=max_points,
-        total_error=entry_error,
+        f, *cells, cell_error, tol=near_tol, n=CELL_GAUSS_POINTS, max_points=max_points,
+        total_error=entry_error, on_generation=on_generation,
     )
     tail_err = np.abs(tail_fine - tail_coarse)
     seconds = time.perf_counter() - t0
