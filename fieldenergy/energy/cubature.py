@@ -94,7 +94,7 @@ def cell_rule_values(f: Integrand, centres: Array, halves: Array, n: int) -> Arr
     pts = (centres[:, None, :] + halves[:, None, None] * nodes[None, :, :]).reshape(-1, 3)
     vals = np.asarray(f(pts))
     vals = vals.reshape(len(centres), len(weights), -1)
-    return np.einsum("kpq,p->kq", vals, weights) * (halves**3)[:, None]
+    return np.matmul(weights, vals) * (halves**3)[:, None]
 
 
 def children(centres: Array, halves: Array) -> tuple[Array, Array]:

@@ -185,7 +185,11 @@ def _density(filaments: Filaments) -> tuple[Callable[[Array], Array], NDArray[np
 
     def f(points: Array) -> Array:
         b = fields(points)
-        return np.einsum("kmi,kmi->mk", b[rows], b[cols]) / MU0
+        out = np.empty((len(points), len(rows)))
+        for k, (p, q) in enumerate(zip(rows, cols)):
+            out[:, k] = np.einsum("mi,mi->m", b[p], b[q])
+        out *= 1.0 / MU0
+        return out
 
     return f, rows, cols
 
