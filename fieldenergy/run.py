@@ -50,7 +50,7 @@ FAST_AJ_RELATIVE_ERROR: float = 1.0e-6
 #: doubled grid costs 16 times the pairs.
 SECTION_CHECK_SAGITTA_FACTOR: float = 5.0
 
-#: Default budget of the field route in point-segment pairs (about a minute on 2 cores; the
+#: Default budget of the field route in point-segment pairs (about 90 s on 2 cores; the
 #: ``field_budget`` solve option, ``--field-budget``). Its cost is points x segments, so a case with many segments
 #: gets fewer cubature points; when the budget stops the cubature first, the result says so
 #: and carries the error reached.

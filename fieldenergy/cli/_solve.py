@@ -31,7 +31,7 @@ def add_args(parser: argparse.ArgumentParser) -> None:
     )
     parser.add_argument(
         "--field-budget", type=positive_number("a number of point-segment pairs"), metavar="PAIRS",
-        help="field route budget in point-segment pairs (default: %(default).0e, about a minute on 2 cores)",
+        help="field route budget in point-segment pairs (default: %(default).0e, about 90 s on 2 cores)",
         default=FIELD_ROUTE_PAIR_BUDGET,
     )
     parser.add_argument(
