@@ -51,9 +51,9 @@ FAST_AJ_RELATIVE_ERROR: float = 1.0e-6
 SECTION_CHECK_SAGITTA_FACTOR: float = 5.0
 
 #: Default budget of the field route in point-segment pairs (about 90 s on 2 cores; the
-#: ``field_budget`` solve option, ``--field-budget``). Its cost is points x segments, so a case with many segments
-#: gets fewer cubature points; when the budget stops the cubature first, the result says so
-#: and carries the error reached.
+#: ``field_budget`` solve option, ``--field-budget``). Its cost is points x segments, so a
+#: case with many segments gets fewer cubature points; when the budget stops the cubature
+#: first, the result says so and carries the error reached.
 FIELD_ROUTE_PAIR_BUDGET: float = DEFAULT_FIELD_BUDGET
 
 #: Fewest cubature points the field route is allowed, whatever the pair budget says.
@@ -165,8 +165,7 @@ def _with_field_route(
     the limit with the A.J route's chord correction from that model.
     """
     with progress(f"field route: {model.filaments.n_segments} segments (% of an estimate)", 100) as update:
-        budget = min(MAX_FIELD_POINTS, max(FIELD_ROUTE_MIN_POINTS, int(pair_budget / max(model.filaments.n_segments, 1))))
-        fi = field_inductance(model.filaments, rel_tol=tolerance, max_points=budget,
+        fi = field_inductance(model.filaments, rel_tol=tolerance, max_points=field_route_points(model, pair_budget),
                               progress=lambda share: update(int(100 * share)))
         update(100)
     n_circuits = len(result.circuit_names)
@@ -234,9 +233,8 @@ def field_route_model(case: Case, options: SolveOptions | None = None) -> Filame
     return discretise(case, level=0, discretisation=_coarse_chords(settings_for(case, options or SolveOptions())))
 
 
-def field_route_points(model: FilamentModel, options: SolveOptions | None = None) -> int:
+def field_route_points(model: FilamentModel, pairs: float = FIELD_ROUTE_PAIR_BUDGET) -> int:
     """The field route's point budget in :func:`solve`: the pair budget over the model's segments."""
-    pairs = (options or SolveOptions()).field_budget
     return min(MAX_FIELD_POINTS, max(FIELD_ROUTE_MIN_POINTS, int(pairs / max(model.filaments.n_segments, 1))))
 
 

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from dataclasses import replace
 
+import itertools
 import json
 import math
 
@@ -426,5 +427,5 @@ def test_field_route_reports_its_progress() -> None:
     shares: list[float] = []
     result = field_inductance(fil, rel_tol=1e-2, progress=shares.append)
     assert result.converged and len(shares) >= 2
-    assert all(0.0 <= a <= b <= 1.0 for a, b in zip(shares, shares[1:]))
+    assert all(0.0 <= a <= b <= 1.0 for a, b in itertools.pairwise(shares))
     assert shares[-1] == 1.0

@@ -100,7 +100,7 @@ def exact_elements(case: Case, model: FilamentModel, order: int = GAUSS_ORDER) -
     """
     fil = model.filaments
     currents = fil.currents(case.currents)
-    xg, _, _, dmat = gauss_rule(order)
+    xg = gauss_rule(order)[0]
     references = _instance_references(case)
     parts: list[tuple[Array, Array, Array]] = []
     straight_mask = np.zeros(fil.n_segments, dtype=bool)
