@@ -260,3 +260,17 @@ def test_batch_runs_the_discharge_and_maps_a_case_declares(tmp_path: Path) -> No
     centre = dict(zip(table[0].split(","), map(float, table[3].split(","))))
     bz = next(v for k, v in centre.items() if k.lower().startswith("bz"))
     assert bz == pytest.approx(MU0 * 40 / (2 * 0.1), rel=1e-6)
+
+
+def test_batch_options_carry_the_field_budget() -> None:
+    import argparse
+
+    from fieldenergy.cli import _batch
+
+    parser = argparse.ArgumentParser()
+    _batch.add_args(parser)
+    options = _batch._options(parser.parse_args(["cases", "--preset", "fast", "--field-budget", "2e11"]))
+    assert options.field_budget == 2e11 and options.field_route
+    assert _batch._options(parser.parse_args(["cases"])).field_budget == SolveOptions().field_budget
+    with pytest.raises(SystemExit):
+        parser.parse_args(["cases", "--field-budget", "-1"])

@@ -36,6 +36,8 @@ def add_args(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--force", action="store_true", help="solve every case, even those whose result is up to date")
     parser.add_argument("--no-field-route", dest="no_field_route", action="store_true",
                         help="skip the field-route cross-check (the |B|^2 integral); faster, no route gap")
+    parser.add_argument("--field-budget", type=positive_number("a number of point-segment pairs"), metavar="PAIRS",
+                        help="field route budget of each solve in point-segment pairs (default: the solve default)")
     parser.add_argument("--out", metavar="FOLDER", help="folder for summary.csv and summary.json (default: DIR)")
     where = parser.add_mutually_exclusive_group()
     where.add_argument("--scheduler", metavar="ADDRESS", help="solve on the Dask cluster whose scheduler is at ADDRESS")
@@ -70,6 +72,8 @@ def run(args: argparse.Namespace) -> int:
 
 def _options(args: argparse.Namespace) -> SolveOptions:
     options = options_from(args)
+    if args.field_budget is not None:
+        options = dataclasses.replace(options, field_budget=args.field_budget)
     return dataclasses.replace(options, field_route=False) if args.no_field_route else options
 
 
