@@ -90,9 +90,10 @@ TREE_CHUNK: int = 250_000
 ENGINES: tuple[str, ...] = ("tree", "fmm")
 
 #: Straight segments nearer to a point than this many core radii are summed in closed form
-#: (the finite-core rule also reaches points within a core radius of a segment's line beyond its
-#: ends, where it differs from the line field by O((a/z)^2) at axial distance z; at 8 radii the
-#: field energy of a rectangular pack of short chords came within 1e-7 of direct summation).
+#: (inside a conductor the finite-core rule also applies to segments whose line passes within a
+#: core radius of the point beyond their ends, where it differs from the line field by O((a/z)^2)
+#: at axial distance z; at 8 radii the field energy of a rectangular pack of short chords came
+#: within 1e-7 of direct summation).
 NEAR_CORE_RADII: float = 8.0
 
 #: Most grid cells along one axis of the near-element search grid.

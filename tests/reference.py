@@ -48,6 +48,18 @@ def _pair_loop(p: list[float], a: list[float], b: list[float], radius: float) ->
     return [f * ck for ck in c], a_coef
 
 
+def inside_conductor(
+    points: NDArray[np.float64], starts: NDArray[np.float64], ends: NDArray[np.float64], radii: NDArray[np.float64]
+) -> NDArray[np.bool_]:
+    """Which points lie within the core radius of some segment (the kernels apply their core
+    rule only there; elsewhere every segment adds its line field)."""
+    pts = np.asarray(points, dtype=float)[:, None, :]
+    d = ends - starts
+    t = np.clip(np.einsum("ijk,jk->ij", pts - starts[None], d) / np.einsum("ij,ij->i", d, d), 0.0, 1.0)
+    gap = pts - (starts[None] + t[..., None] * d[None])
+    return np.asarray((np.einsum("ijk,ijk->ij", gap, gap) < radii[None] ** 2).any(axis=1))
+
+
 def b_a_loop(
     points: NDArray[np.float64],
     starts: NDArray[np.float64],
@@ -58,10 +70,11 @@ def b_a_loop(
     """B and A from the kernels' own formula, one pair at a time in plain Python floats."""
     b_out = np.zeros((len(points), 3))
     a_out = np.zeros((len(points), 3))
+    inside = inside_conductor(points, starts, ends, radii)
     for i, p in enumerate(np.asarray(points, dtype=float).tolist()):
         for j in range(len(starts)):
             a, b = starts[j].tolist(), ends[j].tolist()
-            fc, a_coef = _pair_loop(p, a, b, float(radii[j]))
+            fc, a_coef = _pair_loop(p, a, b, float(radii[j]) if inside[i] else 0.0)
             for k in range(3):
                 b_out[i, k] += _K * currents[j] * fc[k]
                 a_out[i, k] += _K * currents[j] * a_coef * (b[k] - a[k])
@@ -79,10 +92,11 @@ def b_numpy(
     """B from the kernels' formula, vectorised with NumPy over chunks of points x all segments."""
     d = ends - starts
     l2 = np.einsum("ij,ij->i", d, d)
-    a2 = radii * radii
+    inside = inside_conductor(points, starts, ends, radii)
     out = np.empty((len(points), 3))
     for i0 in range(0, len(points), chunk):
         p = points[i0 : i0 + chunk, None, :]
+        a2 = np.where(inside[i0 : i0 + chunk, None], radii[None] ** 2, 0.0)
         u = p - starts[None]
         v = p - ends[None]
         c = np.cross(d[None], u)
@@ -108,6 +122,8 @@ def b_a_decimal(
     radius: float,
 ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
     """B and A of one segment from the textbook forms, in 60-digit decimal arithmetic.
+
+    ``radius`` is the core radius to apply: pass 0 for a point inside no conductor.
 
     Hanson & Hirshman, Phys. Plasmas 9, 4410 (2002), written as printed: with S = Ri + Rf,
     B = K I 2 L S / (Ri Rf (S^2 - L^2)) e x u and A = K I ln((S + L)/(S - L)) e. The core

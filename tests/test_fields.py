@@ -91,11 +91,13 @@ def sum_pairs(
     cur: NDArray[np.float64],
     *rad: NDArray[np.float64],
 ) -> tuple[NDArray[np.float64], NDArray[np.float64]]:
-    """Sum a one-pair reference over all points and segments."""
+    """Sum a one-pair reference over all points and segments; the core radii ``rad`` (if any)
+    apply only at points inside some conductor, as in the kernels."""
     b, a = np.zeros((len(pts), 3)), np.zeros((len(pts), 3))
+    inside = [reference.inside_conductor(pts, starts, ends, r) for r in rad]
     for i, p in enumerate(pts):
         for j in range(len(starts)):
-            bj, aj = fun(p, starts[j], ends[j], cur[j], *(r[j] for r in rad))
+            bj, aj = fun(p, starts[j], ends[j], cur[j], *(r[j] if ins[i] else 0.0 for r, ins in zip(rad, inside)))
             b[i] += bj
             a[i] += aj
     return b, a
@@ -262,6 +264,27 @@ def test_collinear_chain_equals_one_segment(radius: float) -> None:
     b1, a1 = segment_field(pts, SKEW_A[None], SKEW_B[None], 1.5, radius)
     bk, ak = segment_field(pts, s, e, 1.5, radius)
     assert rel_err(bk, b1) < REARRANGED_RTOL and rel_err(ak, a1) < REARRANGED_RTOL
+
+
+def test_core_rule_stops_at_the_conductor_surface() -> None:
+    """Outside every conductor the field is the filament chords' own (Biot-Savart, no core),
+    also where a segment's line core reaches beyond its ends; inside, the core rule holds
+    for every segment whose line core holds the point. The bend of two 5 cm wires (core
+    radius 5 mm) is invented."""
+    s = np.array([[0.0, 0.0, 0.0], [0.05, 0.0, 0.0]])
+    e = np.array([[0.05, 0.0, 0.0], [0.05, 0.05, 0.0]])
+    outside = np.array([[0.08, 0.002, 0.001], [-0.03, 0.003, 0.0], [0.05, 0.09, -0.002]])
+    b, a = segment_field(outside, s, e, 2.0, 0.005)
+    b0, a0 = segment_field(outside, s, e, 2.0, 0.0)
+    assert rel_err(b, b0) < 1e-15 and rel_err(a, a0) < 1e-15
+    # Inside the first wire, 2 mm short of the bend: in the second wire's line core too, so
+    # the core rule applies to both (against the per-pair twin with both radii).
+    inside = np.array([[0.048, 0.001, 0.0005]])
+    b, a = segment_field(inside, s, e, 2.0, 0.005)
+    b_ref, a_ref = sum_pairs(reference.b_a_decimal, inside, s, e, np.full(2, 2.0), np.full(2, 0.005))
+    assert rel_err(b, b_ref) < DECIMAL_RTOL and rel_err(a, a_ref) < DECIMAL_RTOL
+    b0, _ = segment_field(inside, s, e, 2.0, 0.0)
+    assert rel_err(b, b0) > 0.1  # the core rule did act there
 
 
 def test_b_is_curl_a_and_div_b_vanishes() -> None:

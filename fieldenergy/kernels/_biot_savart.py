@@ -30,6 +30,17 @@ Both equal the uniform-current field of an infinite round wire (Ampere's law) wh
 segment is long; the weight w makes the A correction add up along a straight chain of
 segments (it telescopes to 1 inside a long chain and falls to 0 beyond its ends).
 
+The core rule is for points inside the conductors. A point's line core (rho < a) reaches
+along the whole line through a segment, also far beyond its ends, where it would shift a
+filament's field slightly (by a fraction (a / distance)^2 of that segment's share). So the
+rule is applied only at points that lie inside some conductor, that is within the core
+radius of some segment (its capsule); elsewhere every segment adds its line field, the
+exact Biot-Savart field of the filament chords. Every point inside a capsule is in that
+segment's line core, so the test rides on the core pass below. Points inside a conductor
+keep the rule for every segment whose line core holds them (inside a chain, its
+neighbours' too), so the field is continuous inside the conductors; at their surface the
+two rules differ only by the far-line terms above.
+
 Singular cases: on a zero-radius segment (rho = 0 inside [a, b], end points included) the
 result is not finite (NaN or inf); callers detect that and report the point. On the line
 through a segment but beyond its ends B is 0 (d x u = 0, up to its rounding) and A finite;
@@ -40,8 +51,9 @@ Layout. Target points are cut into blocks of at most _BLOCK; ``prange`` runs ove
 each thread writes only its own output rows and no reduction crosses threads. Inside a
 block the loop over segments is outer and the loop over the block's points inner: the inner
 loop is branch-free (selects only) and the compiler vectorises it. Per segment, a first
-pass applies the line formula to every point and counts the points inside the core; only
-if there are any does a second pass redo those with the core rule. When a segment starts
+pass applies the line formula to every point and counts the points in the line core; only
+if there are any does a second pass sum those by both rules, and the choice between the two
+sums is made per point once all segments are done. When a segment starts
 exactly where the previous one ends (a chain, as discretised filaments are), |p - a| is the
 previous segment's |p - b|, kept per point: one square root per pair instead of two. The
 square root and the division are the costly operations (they share one unit that is not
@@ -228,10 +240,11 @@ def _factors(ri, rf, uv, mm_in, l):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _pair(px, py, pz, tab, j):
-    """Full pair with the core rule: (cx, cy, cz, f, ext, x), ext = max(0, a^2 - rho^2)."""
+def _pair(px, py, pz, tab, j, core):
+    """Full pair: (cx, cy, cz, f, ext, x), with the core rule (ext = max(0, a^2 - rho^2))
+    if ``core``, else the line formula (ext = 0)."""
     ux, uy, uz, vx, vy, vz, cx, cy, cz, cc = _cross(px, py, pz, tab, j)
-    ext = max(0.0, _fma(-cc, tab[_INV_L2, j], tab[_A2, j]))
+    ext = max(0.0, _fma(-cc, tab[_INV_L2, j], tab[_A2, j])) if core else 0.0
     ri = np.sqrt(_fma(ux, ux, _fma(uy, uy, _fma(uz, uz, ext))))
     rf = np.sqrt(_fma(vx, vx, _fma(vy, vy, _fma(vz, vz, ext))))
     uv = _fma(ux, vx, _fma(uy, vy, _fma(uz, vz, ext)))
@@ -252,7 +265,7 @@ def _line_pass(qx, qy, qz, r_node, acc, xs, tab, j, want_x):
     n_core = 0
     for i in range(qx.shape[0]):
         ux, uy, uz, vx, vy, vz, cx, cy, cz, cc = _cross(qx[i], qy[i], qz[i], tab, j)
-        # The same expression as in _pair, so the two passes agree on every point.
+        # The same expression as in _core_pass, so the two passes agree on every point.
         in_core = _fma(-cc, tab[_INV_L2, j], tab[_A2, j]) > 0.0
         rf = np.sqrt(_fma(vx, vx, _fma(vy, vy, vz * vz)))
         f, x = _factors(r_node[i], rf, _fma(ux, vx, _fma(uy, vy, uz * vz)), cc, tab[_L, j])
@@ -268,19 +281,47 @@ def _line_pass(qx, qy, qz, r_node, acc, xs, tab, j, want_x):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _core_pass(qx, qy, qz, acc, xs, hs, tab, j):
-    """The points of a block inside segment j's core: B added, x and the A core term set."""
+def _core_pass(qx, qy, qz, acc_c, acc_l, inside, tab, j, want_a):
+    """The points of a block in segment j's line core: both rules' sums, and whether inside.
+
+    For those points acc_c gets the core rule's B (and A when ``want_a``) and acc_l the line
+    formula's; ``inside`` is set where the point lies within the core radius of the segment
+    itself (its capsule). Every point inside any conductor is in that conductor's line core,
+    so after all segments ``inside`` tells which points lie in some conductor.
+    """
     cur = tab[_CUR, j]
+    a2 = tab[_A2, j]
     for i in range(qx.shape[0]):
-        cx, cy, cz, f, ext, x = _pair(qx[i], qy[i], qz[i], tab, j)
+        ux, uy, uz, vx, vy, vz, cx, cy, cz, cc = _cross(qx[i], qy[i], qz[i], tab, j)
+        ext = max(0.0, _fma(-cc, tab[_INV_L2, j], a2))
         in_core = ext > 0.0
-        g = cur * f if in_core else 0.0
-        acc[0, i] = _fma(g, cx, acc[0, i])
-        acc[1, i] = _fma(g, cy, acc[1, i])
-        acc[2, i] = _fma(g, cz, acc[2, i])
-        xs[i] = x if in_core else xs[i]
-        # A core term I f L ext / 2 (module docstring); 0 outside the core.
-        hs[i] = 0.5 * cur * tab[_L, j] * f * ext
+        uu = _fma(ux, ux, _fma(uy, uy, uz * uz))
+        vv = _fma(vx, vx, _fma(vy, vy, vz * vz))
+        uv = _fma(ux, vx, _fma(uy, vy, uz * vz))
+        f_c, x_c = _factors(np.sqrt(uu + ext), np.sqrt(vv + ext), uv + ext, _fma(tab[_L2, j], ext, cc), tab[_L, j])
+        f_l, x_l = _factors(np.sqrt(uu), np.sqrt(vv), uv, cc, tab[_L, j])
+        g_c = cur * f_c if in_core else 0.0
+        g_l = cur * f_l if in_core else 0.0
+        acc_c[0, i] = _fma(g_c, cx, acc_c[0, i])
+        acc_c[1, i] = _fma(g_c, cy, acc_c[1, i])
+        acc_c[2, i] = _fma(g_c, cz, acc_c[2, i])
+        acc_l[0, i] = _fma(g_l, cx, acc_l[0, i])
+        acc_l[1, i] = _fma(g_l, cy, acc_l[1, i])
+        acc_l[2, i] = _fma(g_l, cz, acc_l[2, i])
+        ud = _fma(ux, tab[_DX, j], _fma(uy, tab[_DY, j], uz * tab[_DZ, j]))
+        vd = _fma(vx, tab[_DX, j], _fma(vy, tab[_DY, j], vz * tab[_DZ, j]))
+        own = (ud >= 0.0 and vd <= 0.0) or uu < a2 or vv < a2
+        inside[i] = inside[i] or (in_core and own)
+        if want_a:
+            # Core rule: A_line at the effective point plus the core term I f L ext / 2.
+            h_c = cur * _fma(0.5 * tab[_L, j] * f_c, ext, _log1p(x_c)) * tab[_INV_L, j] if in_core else 0.0
+            h_l = cur * _log1p(x_l) * tab[_INV_L, j] if in_core else 0.0
+            acc_c[3, i] = _fma(h_c, tab[_DX, j], acc_c[3, i])
+            acc_c[4, i] = _fma(h_c, tab[_DY, j], acc_c[4, i])
+            acc_c[5, i] = _fma(h_c, tab[_DZ, j], acc_c[5, i])
+            acc_l[3, i] = _fma(h_l, tab[_DX, j], acc_l[3, i])
+            acc_l[4, i] = _fma(h_l, tab[_DY, j], acc_l[4, i])
+            acc_l[5, i] = _fma(h_l, tab[_DZ, j], acc_l[5, i])
 
 
 @njit(cache=True, inline="always", error_model="numpy")
@@ -292,7 +333,12 @@ def _block(points, i0, w, tab, n_acc):
     acc = np.zeros((n_acc, w))
     r_node = np.empty(w)
     xs = np.empty(w)
-    hs = np.empty(w)
+    # The in-core pairs' sums by the core rule and by the line formula, kept apart until it
+    # is known which points lie inside some conductor (module docstring).
+    acc_c = np.zeros((n_acc, w))
+    acc_l = np.zeros((n_acc, w))
+    inside = np.zeros(w, np.bool_)
+    any_core = False
     for j in range(tab.shape[1]):
         if tab[_JOINED, j] == 0.0:
             for i in range(w):
@@ -300,18 +346,22 @@ def _block(points, i0, w, tab, n_acc):
                 uy = qy[i] - tab[_AY, j]
                 uz = qz[i] - tab[_AZ, j]
                 r_node[i] = np.sqrt(_fma(ux, ux, _fma(uy, uy, uz * uz)))
-        has_core = _line_pass(qx, qy, qz, r_node, acc, xs, tab, j, n_acc == 6) > 0
-        if has_core:
-            _core_pass(qx, qy, qz, acc, xs, hs, tab, j)
+        if _line_pass(qx, qy, qz, r_node, acc, xs, tab, j, n_acc == 6) > 0:
+            any_core = True
+            _core_pass(qx, qy, qz, acc_c, acc_l, inside, tab, j, n_acc == 6)
         if n_acc == 6:
             # The logarithm in a loop of its own keeps each loop body small enough for the
             # CPU to overlap iterations (measured ~25 % faster than one fused loop).
-            cur = tab[_CUR, j]
+            h = tab[_CUR, j] * tab[_INV_L, j]
             for i in range(w):
-                h = _fma(cur, _log1p(xs[i]), hs[i] if has_core else 0.0) * tab[_INV_L, j]
-                acc[3, i] = _fma(h, tab[_DX, j], acc[3, i])
-                acc[4, i] = _fma(h, tab[_DY, j], acc[4, i])
-                acc[5, i] = _fma(h, tab[_DZ, j], acc[5, i])
+                g = h * _log1p(xs[i])
+                acc[3, i] = _fma(g, tab[_DX, j], acc[3, i])
+                acc[4, i] = _fma(g, tab[_DY, j], acc[4, i])
+                acc[5, i] = _fma(g, tab[_DZ, j], acc[5, i])
+    if any_core:
+        for k in range(n_acc):
+            for i in range(w):
+                acc[k, i] += acc_c[k, i] if inside[i] else acc_l[k, i]
     return acc
 
 

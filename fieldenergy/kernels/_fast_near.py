@@ -23,7 +23,7 @@ import numpy as np
 from numba import njit, prange
 
 from fieldenergy.constants import MU0_OVER_4PI
-from fieldenergy.kernels._biot_savart import _AX, _AY, _AZ, _CUR, _DX, _DY, _DZ, _INV_L2, _pair
+from fieldenergy.kernels._biot_savart import _A2, _AX, _AY, _AZ, _CUR, _DX, _DY, _DZ, _INV_L2, _pair
 from fieldenergy.kernels._exact_path import _distance, _element
 
 
@@ -102,7 +102,7 @@ def near_segment_correction(points, tab, src_pos, src_chg, reach, origin, cell, 
 
     The straight-segment counterpart of :func:`near_correction`, for B only: ``tab`` is the
     segment table of :func:`fieldenergy.kernels._biot_savart._segment_table` and the closed
-    form is that kernel's, finite-core rule included, so the corrected field equals
+    form is that kernel's, finite-core rule included (inside conductors only), so the corrected field equals
     :func:`fieldenergy.kernels._biot_savart.b_from_segments` up to the far sum's tolerance.
     A segment is near a point closer than reach[j] to it; the grid (cells at least as large
     as every reach) holds each segment by the cell of its midpoint.
@@ -111,14 +111,23 @@ def near_segment_correction(points, tab, src_pos, src_chg, reach, origin, cell, 
         acc = np.zeros(6)
         px, py, pz = points[t, 0], points[t, 1], points[t, 2]
         cells = np.empty(27, np.int64)
-        for c in range(_neighbour_cells(points[t], origin, cell, dims, cells)):
+        n_cells = _neighbour_cells(points[t], origin, cell, dims, cells)
+        # The core rule holds only inside a conductor (see the closed form's module); every
+        # segment whose core holds the point is near it (reach >= core radius).
+        inside = False
+        for c in range(n_cells):
+            k = cells[c]
+            for i in range(cell_start[k], cell_start[k + 1]):
+                j = cell_segs[i]
+                inside = inside or _segment_distance(px, py, pz, tab, j) ** 2 < tab[_A2, j]
+        for c in range(n_cells):
             k = cells[c]
             for i in range(cell_start[k], cell_start[k + 1]):
                 j = cell_segs[i]
                 if _segment_distance(px, py, pz, tab, j) >= reach[j]:
                     continue
                 _minus_sources(px, py, pz, j, src_pos, src_chg, acc)
-                cx, cy, cz, f, _, _ = _pair(px, py, pz, tab, j)
+                cx, cy, cz, f, _, _ = _pair(px, py, pz, tab, j, inside)
                 g = tab[_CUR, j] * f
                 acc[0] += g * cx
                 acc[1] += g * cy
