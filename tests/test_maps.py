@@ -292,7 +292,7 @@ def test_cli_map_writes_declared_maps(tmp_path: Path, capsys: pytest.CaptureFixt
     folder = _write_case(tmp_path / "c", LINE)
     assert main(["map", str(folder)]) == 0
     assert (folder / "maps" / "axis.csv").is_file() and (folder / "maps" / "geometry.vtu").is_file()
-    assert "map 'axis' (line, 41 points)" in capsys.readouterr().out
+    assert "map 'axis' (line, 41 points, direct)" in capsys.readouterr().out
     out = tmp_path / "elsewhere"
     assert main(["map", str(folder), "--out-dir", str(out)]) == 0
     assert (out / "axis.png").is_file()

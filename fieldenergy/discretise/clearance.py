@@ -4,7 +4,8 @@ Each instance's centre line is sampled about every section half-size; two instan
 samples come closer than the sum of their section half-sizes (times
 ``constants.INTERSECTION_CLEARANCE_FRACTION``) raise a :class:`FieldEnergyWarning` naming both
 and the place. Samples are compared with a k-d tree, one pair of instances at a time, only for
-pairs whose bounding boxes come that close. An overlap shorter than the sample spacing can be
+pairs whose bounding boxes come that close (those are found by whole-array tests, one row of
+pairs at a time). An overlap shorter than the sample spacing can be
 missed; the check is a guard against typing mistakes, not a proof of clearance.
 """
 
@@ -76,24 +77,35 @@ def warn_if_intersecting(names: Sequence[str], curves: Sequence[Curve], half_siz
     lows = [p.min(axis=0) for p in points]
     highs = [p.max(axis=0) for p in points]
     trees: dict[int, cKDTree] = {}
-    for i in range(len(curves)):
-        for j in range(i + 1, len(curves)):
-            limit = INTERSECTION_CLEARANCE_FRACTION * (half_sizes[i] + half_sizes[j]) * (1.0 - TOUCH_RTOL)
-            if np.any(lows[i] - highs[j] >= limit) or np.any(lows[j] - highs[i] >= limit):
-                continue
-            near = np.all((points[i] > lows[j] - limit) & (points[i] < highs[j] + limit), axis=1)
-            if not near.any():
-                continue
-            tree = trees.setdefault(j, cKDTree(points[j]))
-            dist, idx = tree.query(points[i][near], distance_upper_bound=limit)
-            hit = np.isfinite(dist) & (dist < limit)
-            if hit.any():
-                k = int(np.argmin(np.where(hit, dist, np.inf)))
-                where = 0.5 * (points[i][near][k] + points[j][idx[k]])
-                warnings.warn(
-                    f"coils {names[i]!r} and {names[j]!r} come within {dist[k]:.6g} m of each other near "
-                    f"({where[0]:.6g}, {where[1]:.6g}, {where[2]:.6g}) m, less than the sum of their section "
-                    f"half-sizes {half_sizes[i] + half_sizes[j]:.6g} m: the conductors intersect",
-                    FieldEnergyWarning,
-                    stacklevel=3,
-                )
+    box_lo, box_hi = np.array(lows).reshape(-1, 3), np.array(highs).reshape(-1, 3)
+    for i, j in _box_pairs(box_lo, box_hi, np.asarray(half_sizes, dtype=np.float64)):
+        limit = INTERSECTION_CLEARANCE_FRACTION * (half_sizes[i] + half_sizes[j]) * (1.0 - TOUCH_RTOL)
+        near = np.all((points[i] > lows[j] - limit) & (points[i] < highs[j] + limit), axis=1)
+        if not near.any():
+            continue
+        tree = trees.setdefault(j, cKDTree(points[j]))
+        dist, idx = tree.query(points[i][near], distance_upper_bound=limit)
+        hit = np.isfinite(dist) & (dist < limit)
+        if hit.any():
+            k = int(np.argmin(np.where(hit, dist, np.inf)))
+            where = 0.5 * (points[i][near][k] + points[j][idx[k]])
+            warnings.warn(
+                f"coils {names[i]!r} and {names[j]!r} come within {dist[k]:.6g} m of each other near "
+                f"({where[0]:.6g}, {where[1]:.6g}, {where[2]:.6g}) m, less than the sum of their section "
+                f"half-sizes {half_sizes[i] + half_sizes[j]:.6g} m: the conductors intersect",
+                FieldEnergyWarning,
+                stacklevel=3,
+            )
+
+
+def _box_pairs(lows: NDArray[np.float64], highs: NDArray[np.float64], half: NDArray[np.float64]) -> list[tuple[int, int]]:
+    """Pairs i < j of instances whose bounding boxes come closer than their limit, found by
+    rows of whole-array tests (a stack of a thousand loops has half a million pairs to rule out)."""
+    found: list[tuple[int, int]] = []
+    n = len(half)
+    for i in range(n - 1):
+        limit = INTERSECTION_CLEARANCE_FRACTION * (half[i] + half[i + 1 :]) * (1.0 - TOUCH_RTOL)
+        apart = (np.any(lows[i] - highs[i + 1 :] >= limit[:, None], axis=1)
+                 | np.any(lows[i + 1 :] - highs[i] >= limit[:, None], axis=1))
+        found += [(i, i + 1 + int(k)) for k in np.flatnonzero(~apart)]
+    return found

@@ -10,6 +10,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from fieldenergy.discretise import discretise
+from fieldenergy.fastfield import ESTIMATE_TREE, TREE_SETTINGS, TreeSettings
 from fieldenergy.maps.exact_path import (
     MAX_SUBDIVISIONS,
     ExactElements,
@@ -27,7 +28,7 @@ from fieldenergy.model.options import SolveOptions
 ESTIMATE_ORDER: int = 6
 
 #: The error estimate is evaluated on at most this many points of a map (a seeded sample of
-#: larger maps), since it costs about as much as the map itself.
+#: larger maps): summed directly, a point costs as much in the estimate as in the map.
 ESTIMATE_POINTS: int = 4096
 
 #: Automatic choice: the treecode is used when the number of target x element pairs exceeds
@@ -39,6 +40,11 @@ FAST_MIN_PAIRS: float = 1.0e8
 #: Ways to evaluate a map: ``auto`` chooses by size, ``direct`` sums every pair, ``fast`` uses
 #: the treecode and ``fmm`` the fast multipole method of fmm3dpy (an optional dependency).
 METHODS: tuple[str, ...] = ("auto", "direct", "fast", "fmm")
+
+#: A treecode map whose estimated relative error (largest on the sample) exceeds this is
+#: evaluated again with the next of :data:`fieldenergy.fastfield.TREE_SETTINGS`: the 1e-6
+#: that maps aim for (homogeneity in ppm).
+TREE_RETRY_TOLERANCE: float = 1.0e-6
 
 #: |B| below this fraction of the map's largest |B| counts as zero for relative errors.
 RELATIVE_FLOOR: float = 1.0e-9
@@ -67,6 +73,11 @@ class MapResult:
         B at the reference point (T), shape (3,).
     error_index, error
         Points where the error of B was estimated and the estimate there (T).
+    method
+        How the field was summed: ``direct``, ``tree`` or ``fmm``.
+    tree
+        The treecode's settings (``tree`` only; the first of those tried whose estimated
+        error was within :data:`TREE_RETRY_TOLERANCE`, else the last).
     """
 
     spec: MapSpec
@@ -78,6 +89,8 @@ class MapResult:
     b_reference: Array
     error_index: NDArray[np.int64]
     error: Array
+    method: str = "direct"
+    tree: TreeSettings | None = None
 
     @property
     def relative_error(self) -> float:
@@ -85,7 +98,7 @@ class MapResult:
         if len(self.error) == 0:
             return 0.0
         mag = np.linalg.norm(self.b[self.error_index], axis=1)
-        floor = max(float(np.linalg.norm(self.b, axis=1).max()) * RELATIVE_FLOOR, np.finfo(float).tiny)
+        floor = _floor(np.linalg.norm(self.b, axis=1))
         return float(np.max(self.error / np.maximum(mag, floor)))
 
 
@@ -101,7 +114,7 @@ def evaluate_map(
 
     The field is integrated along the exact conductor paths (see
     :mod:`fieldenergy.maps.exact_path`); the error is estimated on up to
-    :data:`ESTIMATE_POINTS` points as the difference from a lower-order evaluation.
+    :data:`ESTIMATE_POINTS` points (see :func:`_field_and_error`).
 
     Parameters
     ----------
@@ -131,15 +144,13 @@ def evaluate_map(
     points, shape = map_points(spec)
     elements = exact_elements(case, model)
     fast = _use_fast(method, len(points), elements)
-    b, a = _field(points, elements, f"map {spec.name!r}", progress, fast=fast)
-    ref = np.asarray(reference_point(spec), dtype=np.float64)[None, :]
-    b_ref = exact_field(ref, elements)[0][0]
     index = _estimate_index(len(points))
     low = exact_elements(case, model, ESTIMATE_ORDER)
-    b_low = _field(points[index], low, f"map {spec.name!r}, error estimate", progress, MAX_SUBDIVISIONS // 2)[0]
-    error = np.linalg.norm(b[index] - b_low, axis=1)
+    b, a, error, tree = _field_and_error(points, elements, low, index, f"map {spec.name!r}", progress, fast)
+    ref = np.asarray(reference_point(spec), dtype=np.float64)[None, :]
+    b_ref = exact_field(ref, elements)[0][0]
     values = map_quantities(spec.quantities, b, a, b_ref)
-    return MapResult(spec, points, shape, b, a, values, b_ref, index, error)
+    return MapResult(spec, points, shape, b, a, values, b_ref, index, error, fast or "direct", tree)
 
 
 def evaluate_maps(case: Case, *, method: str = "auto", progress: ProgressFactory | None = None) -> list[MapResult]:
@@ -161,13 +172,14 @@ def _use_fast(method: str, n_points: int, elements: ExactElements) -> str | None
 
 def _field(
     points: Array, elements: ExactElements, label: str, progress: ProgressFactory | None,
-    max_subdivisions: int = MAX_SUBDIVISIONS, fast: str | None = None,
+    max_subdivisions: int = MAX_SUBDIVISIONS, fast: str | None = None, tree: TreeSettings | None = None,
 ) -> tuple[Array, Array]:
     from fieldenergy.fastfield import fast_field
 
     def run(update: Callable[[int], None] | None) -> tuple[Array, Array]:
         if fast is not None:
-            return fast_field(points, elements, engine=fast, progress=update)
+            return fast_field(points, elements, engine=fast, settings=tree, max_subdivisions=max_subdivisions,
+                              progress=update)
         return exact_field(points, elements, max_subdivisions=max_subdivisions, progress=update)
 
     if progress is None:
@@ -203,7 +215,6 @@ def reference_field(
     there is applied to every point (times its |B|).
     """
     from fieldenergy.fieldmap import field_with_error
-    from fieldenergy.fastfield import fast_field
 
     pts = np.ascontiguousarray(points, dtype=np.float64)
     model = discretise(case)
@@ -211,14 +222,48 @@ def reference_field(
     engine = _use_fast(method, len(pts), elements)
     if engine is None:
         return field_with_error(case, pts, options, progress)
-    if progress is None:
-        b, a = fast_field(pts, elements, engine=engine)
-    else:
-        with progress(f"reference field ({engine})", len(pts)) as update:
-            b, a = fast_field(pts, elements, engine=engine, progress=update)
     index = _estimate_index(len(pts))
-    b_low = exact_field(pts[index], exact_elements(case, model, ESTIMATE_ORDER), max_subdivisions=MAX_SUBDIVISIONS // 2)[0]
+    low = exact_elements(case, model, ESTIMATE_ORDER)
+    b, a, error, _ = _field_and_error(pts, elements, low, index, f"reference field ({engine})", progress, engine)
     mag = np.linalg.norm(b, axis=1)
-    floor = max(float(mag.max(initial=0.0)) * RELATIVE_FLOOR, np.finfo(float).tiny)
-    rel = np.linalg.norm(b[index] - b_low, axis=1) / np.maximum(mag[index], floor)
-    return b, a, float(rel.max(initial=0.0)) * np.maximum(mag, floor)
+    floor = _floor(mag)
+    return b, a, float(np.max(error / np.maximum(mag[index], floor), initial=0.0)) * np.maximum(mag, floor)
+
+
+def _floor(mag: Array) -> float:
+    return max(float(mag.max(initial=0.0)) * RELATIVE_FLOOR, np.finfo(float).tiny)
+
+
+def _field_and_error(
+    points: Array, elements: ExactElements, low: ExactElements, index: NDArray[np.int64], label: str,
+    progress: ProgressFactory | None, fast: str | None,
+) -> tuple[Array, Array, Array, TreeSettings | None]:
+    """B and A at points (direct or ``fast``), the error estimate of B at ``index`` (T) and
+    the treecode settings used.
+
+    Direct: the estimate is the difference from a lower-order evaluation (``low``, half the
+    sub-chords). Fast: the sample is evaluated twice by the treecode with
+    :data:`fieldenergy.fastfield.ESTIMATE_TREE` (far more accurate on a scattered sample),
+    once with the map's elements (the summation error is the map's difference from it) and
+    once with ``low`` (the integration rule's error is the difference of the two); the
+    estimate is the sum of both parts. The treecode runs with the first of
+    :data:`fieldenergy.fastfield.TREE_SETTINGS`, and with the next one while its summation
+    error on the sample exceeds :data:`TREE_RETRY_TOLERANCE`.
+    """
+    if fast is None:
+        b, a = _field(points, elements, label, progress)
+        b_low = _field(points[index], low, f"{label}, error estimate", progress, MAX_SUBDIVISIONS // 2)[0]
+        return b, a, np.linalg.norm(b[index] - b_low, axis=1), None
+    sample = np.ascontiguousarray(points[index])
+    check = TreeSettings(*ESTIMATE_TREE)
+    b_ref = _field(sample, elements, f"{label}, error estimate", progress, fast="tree", tree=check)[0]
+    b_low = _field(sample, low, f"{label}, error estimate", progress, MAX_SUBDIVISIONS // 2, "tree", check)[0]
+    tries = [TreeSettings(*t) for t in TREE_SETTINGS] if fast == "tree" else [None]
+    for k, tree in enumerate(tries):
+        name = label if k == 0 else f"{label}, treecode order {tree.order}"  # type: ignore[union-attr]
+        b, a = _field(points, elements, name, progress, fast=fast, tree=tree)
+        summed = np.linalg.norm(b[index] - b_ref, axis=1)
+        if np.max(summed / np.maximum(np.linalg.norm(b_ref, axis=1), _floor(np.linalg.norm(b, axis=1))),
+                  initial=0.0) <= TREE_RETRY_TOLERANCE:
+            break
+    return b, a, summed + np.linalg.norm(b_ref - b_low, axis=1), tree

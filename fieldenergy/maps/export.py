@@ -146,8 +146,17 @@ def _summary_entry(res: MapResult, files: list[Path]) -> dict[str, object]:
         "B_min_T": float(mag.min()),
         "B_reference_T": res.b_reference.tolist(),
         "estimated_relative_error": res.relative_error,
+        "settings": _settings(res),
         "files": [f.name for f in files],
     }
+
+
+def _settings(res: MapResult) -> dict[str, object]:
+    """How the map's field was summed (and, for the treecode, its checked settings)."""
+    out: dict[str, object] = {"method": res.method}
+    if res.tree is not None:
+        out.update(tree_order=res.tree.order, tree_theta=res.tree.theta, tree_sources_per_element=res.tree.sources)
+    return out
 
 
 def _safe(name: str) -> str:
