@@ -83,13 +83,19 @@ TREE_THETA: float = 0.5
 
 #: Treecode settings (order, theta, point sources per element) tried in turn for a map whose
 #: estimated error is too large (see :mod:`fieldenergy.maps.evaluate`): the default, then one
-#: for fields that nearly cancel. Both the treecode's error and the point-source rule's are
+#: for fields that nearly cancel (higher order, then more sources). Both the treecode's error and the point-source rule's are
 #: fractions of the sum of the contributions' sizes, so where those cancel (just outside a long solenoid |B| is ~1e-3 of
 #: its peak) they grow relative to the local field. Measured on 3000 points 1 to 10 cm
 #: outside a solenoid of 1000 loops of 25 elements: (7, 0.5, 4) 6.7e-6; (9, 0.5, 4) 6.6e-7,
 #: the source rule's floor; (9, 0.5, 6) 7.3e-9 at 1.2x the time. On the 100-loop benchmark
 #: order 9 alone costs 1.7x, so the second setting is used only when the first falls short.
-TREE_SETTINGS: tuple[tuple[int, float, int], ...] = ((TREE_ORDER, TREE_THETA, TREE_SOURCES), (9, 0.5, 6))
+TREE_SETTINGS: tuple[tuple[int, float, int], ...] = (
+    (TREE_ORDER, TREE_THETA, TREE_SOURCES), (9, 0.5, TREE_SOURCES), (9, 0.5, 6))
+
+#: Target leaves (of :data:`TREE_TARGET_LEAF` points) drawn for a pilot of a large point set:
+#: whole leaves, so that the pilot's cells are as small as the full set's and its treecode
+#: error alike (a scattered sample's is far smaller, see :data:`ESTIMATE_TREE`).
+PILOT_LEAVES: int = 12
 
 #: Treecode settings of the error estimate's sample evaluations (see
 #: :mod:`fieldenergy.maps.evaluate`). A sample of a few thousand points scattered over a map
@@ -198,6 +204,17 @@ class SegmentTreeSum:
         out = tree_field(points, self.tree, self.theta, TREE_TARGET_LEAF)
         b[:] = MU0_OVER_4PI * out[:3].T
         near_segment_correction(points, self.tab, self.src_pos, self.src_chg, self.reach, *self.grid, b)
+
+
+def pilot_points(points: Array, leaves: int | None = None) -> NDArray[np.int64]:
+    """Indices of the points of ``leaves`` (default :data:`PILOT_LEAVES`) randomly drawn
+    (seeded) leaf cells of the points' treecode target tree: clusters as dense as the full
+    set's (sorted)."""
+    leaves = PILOT_LEAVES if leaves is None else leaves
+    perm, start, end, _, nch, _, _, _ = build_tree(np.ascontiguousarray(points, dtype=np.float64), TREE_TARGET_LEAF)
+    leaf = np.flatnonzero(nch == 0)
+    pick = np.random.default_rng(0).choice(leaf, min(leaves, len(leaf)), replace=False)
+    return np.sort(np.concatenate([perm[start[c]:end[c]] for c in pick])).astype(np.int64)
 
 
 def fast_field(

@@ -10,7 +10,7 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from fieldenergy.discretise import discretise
-from fieldenergy.fastfield import ESTIMATE_TREE, TREE_SETTINGS, TreeSettings
+from fieldenergy.fastfield import ESTIMATE_TREE, TREE_SETTINGS, TREE_TARGET_LEAF, TreeSettings
 from fieldenergy.maps.exact_path import (
     MAX_SUBDIVISIONS,
     ExactElements,
@@ -45,6 +45,13 @@ METHODS: tuple[str, ...] = ("auto", "direct", "fast", "fmm")
 #: evaluated again with the next of :data:`fieldenergy.fastfield.TREE_SETTINGS`: the 1e-6
 #: that maps aim for (homogeneity in ppm).
 TREE_RETRY_TOLERANCE: float = 1.0e-6
+
+#: Before a large treecode map, its settings are chosen on a pilot of whole target leaves:
+#: the first of :data:`fieldenergy.fastfield.TREE_SETTINGS` within this tolerance there (half
+#: the retry tolerance, a margin for the leaves the pilot misses). Maps of fewer than
+#: :data:`PILOT_MIN_LEAVES` leaves skip the pilot (a retry costs little there).
+TREE_PILOT_TOLERANCE: float = 5.0e-7
+PILOT_MIN_LEAVES: int = 50
 
 #: |B| below this fraction of the map's largest |B| counts as zero for relative errors.
 RELATIVE_FLOOR: float = 1.0e-9
@@ -234,6 +241,22 @@ def _floor(mag: Array) -> float:
     return max(float(mag.max(initial=0.0)) * RELATIVE_FLOOR, np.finfo(float).tiny)
 
 
+def _pilot_choice(points: Array, elements: ExactElements, tries: list[TreeSettings], check: TreeSettings) -> int:
+    """Index of the first treecode setting whose error on a pilot (whole target leaves, see
+    :func:`fieldenergy.fastfield.pilot_points`) is within :data:`TREE_PILOT_TOLERANCE` of
+    the ``check`` setting's; the last if none is."""
+    from fieldenergy.fastfield import fast_field, pilot_points
+
+    pts = np.ascontiguousarray(points[pilot_points(points)])
+    ref = fast_field(pts, elements, settings=check)[0]
+    mag = np.linalg.norm(ref, axis=1)
+    for k, tree in enumerate(tries):
+        b = fast_field(pts, elements, settings=tree)[0]
+        if np.max(np.linalg.norm(b - ref, axis=1) / np.maximum(mag, _floor(mag)), initial=0.0) <= TREE_PILOT_TOLERANCE:
+            return k
+    return len(tries) - 1
+
+
 def _field_and_error(
     points: Array, elements: ExactElements, low: ExactElements, index: NDArray[np.int64], label: str,
     progress: ProgressFactory | None, fast: str | None,
@@ -246,9 +269,10 @@ def _field_and_error(
     :data:`fieldenergy.fastfield.ESTIMATE_TREE` (far more accurate on a scattered sample),
     once with the map's elements (the summation error is the map's difference from it) and
     once with ``low`` (the integration rule's error is the difference of the two); the
-    estimate is the sum of both parts. The treecode runs with the first of
-    :data:`fieldenergy.fastfield.TREE_SETTINGS`, and with the next one while its summation
-    error on the sample exceeds :data:`TREE_RETRY_TOLERANCE`.
+    estimate is the sum of both parts. The treecode runs with the setting a pilot chose (see
+    :func:`_pilot_choice`; the first of :data:`fieldenergy.fastfield.TREE_SETTINGS` for a
+    small map), and again with the next one while its summation error on the sample exceeds
+    :data:`TREE_RETRY_TOLERANCE`.
     """
     if fast is None:
         b, a = _field(points, elements, label, progress)
@@ -259,6 +283,8 @@ def _field_and_error(
     b_ref = _field(sample, elements, f"{label}, error estimate", progress, fast="tree", tree=check)[0]
     b_low = _field(sample, low, f"{label}, error estimate", progress, MAX_SUBDIVISIONS // 2, "tree", check)[0]
     tries = [TreeSettings(*t) for t in TREE_SETTINGS] if fast == "tree" else [None]
+    if fast == "tree" and len(points) > PILOT_MIN_LEAVES * TREE_TARGET_LEAF:
+        tries = tries[_pilot_choice(points, elements, tries, check):]
     for k, tree in enumerate(tries):
         name = label if k == 0 else f"{label}, treecode order {tree.order}"  # type: ignore[union-attr]
         b, a = _field(points, elements, name, progress, fast=fast, tree=tree)
