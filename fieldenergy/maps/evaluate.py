@@ -10,7 +10,14 @@ import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from fieldenergy.discretise import discretise
-from fieldenergy.fastfield import ESTIMATE_TREE, TREE_SETTINGS, TREE_TARGET_LEAF, TreeSettings
+from fieldenergy.fastfield import (
+    ESTIMATE_LOW_TREE,
+    ESTIMATE_TREE,
+    TREE_SETTINGS,
+    TREE_TARGET_LEAF,
+    TreeSettings,
+    TreeSum,
+)
 from fieldenergy.maps.exact_path import (
     MAX_SUBDIVISIONS,
     ExactElements,
@@ -179,13 +186,13 @@ def _use_fast(method: str, n_points: int, elements: ExactElements) -> str | None
 
 def _field(
     points: Array, elements: ExactElements, label: str, progress: ProgressFactory | None,
-    max_subdivisions: int = MAX_SUBDIVISIONS, fast: str | None = None, tree: TreeSettings | None = None,
+    max_subdivisions: int = MAX_SUBDIVISIONS, fast: str | None = None, tree: TreeSum | None = None,
 ) -> tuple[Array, Array]:
     from fieldenergy.fastfield import fast_field
 
     def run(update: Callable[[int], None] | None) -> tuple[Array, Array]:
         if fast is not None:
-            return fast_field(points, elements, engine=fast, settings=tree, max_subdivisions=max_subdivisions,
+            return fast_field(points, elements, engine=fast, tree=tree, max_subdivisions=max_subdivisions,
                               progress=update)
         return exact_field(points, elements, max_subdivisions=max_subdivisions, progress=update)
 
@@ -241,20 +248,21 @@ def _floor(mag: Array) -> float:
     return max(float(mag.max(initial=0.0)) * RELATIVE_FLOOR, np.finfo(float).tiny)
 
 
-def _pilot_choice(points: Array, elements: ExactElements, tries: list[TreeSettings], check: TreeSettings) -> int:
-    """Index of the first treecode setting whose error on a pilot (whole target leaves, see
-    :func:`fieldenergy.fastfield.pilot_points`) is within :data:`TREE_PILOT_TOLERANCE` of
-    the ``check`` setting's; the last if none is."""
+def _pilot_choice(points: Array, elements: ExactElements, check: TreeSum) -> tuple[int, TreeSum]:
+    """The first of :data:`fieldenergy.fastfield.TREE_SETTINGS` (index, and its treecode) whose
+    B on a pilot of whole target leaves (see :func:`fieldenergy.fastfield.pilot_points`) is
+    within :data:`TREE_PILOT_TOLERANCE` of the ``check`` treecode's; the last if none is."""
     from fieldenergy.fastfield import fast_field, pilot_points
 
     pts = np.ascontiguousarray(points[pilot_points(points)])
-    ref = fast_field(pts, elements, settings=check)[0]
+    ref = fast_field(pts, elements, tree=check)[0]
     mag = np.linalg.norm(ref, axis=1)
-    for k, tree in enumerate(tries):
-        b = fast_field(pts, elements, settings=tree)[0]
+    for k, setting in enumerate(TREE_SETTINGS):
+        tree = TreeSum(elements, *setting)
+        b = fast_field(pts, elements, tree=tree)[0]
         if np.max(np.linalg.norm(b - ref, axis=1) / np.maximum(mag, _floor(mag)), initial=0.0) <= TREE_PILOT_TOLERANCE:
-            return k
-    return len(tries) - 1
+            break
+    return k, tree
 
 
 def _field_and_error(
@@ -265,31 +273,36 @@ def _field_and_error(
     the treecode settings used.
 
     Direct: the estimate is the difference from a lower-order evaluation (``low``, half the
-    sub-chords). Fast: the sample is evaluated twice by the treecode with
-    :data:`fieldenergy.fastfield.ESTIMATE_TREE` (far more accurate on a scattered sample),
-    once with the map's elements (the summation error is the map's difference from it) and
-    once with ``low`` (the integration rule's error is the difference of the two); the
-    estimate is the sum of both parts. The treecode runs with the setting a pilot chose (see
-    :func:`_pilot_choice`; the first of :data:`fieldenergy.fastfield.TREE_SETTINGS` for a
+    sub-chords). Fast: the sample is evaluated twice by the treecode, scattered samples being
+    summed far more accurately than a dense map: once with the map's elements and
+    :data:`fieldenergy.fastfield.ESTIMATE_TREE` (the summation error is the map's difference
+    from it), once with ``low`` (the integration rule's error is the difference of the two);
+    the estimate is the sum of both parts. The treecode runs with the setting a pilot chose
+    (see :func:`_pilot_choice`; the first of :data:`fieldenergy.fastfield.TREE_SETTINGS` for a
     small map), and again with the next one while its summation error on the sample exceeds
-    :data:`TREE_RETRY_TOLERANCE`.
+    :data:`TREE_RETRY_TOLERANCE`. Each source tree is built once.
     """
     if fast is None:
         b, a = _field(points, elements, label, progress)
         b_low = _field(points[index], low, f"{label}, error estimate", progress, MAX_SUBDIVISIONS // 2)[0]
         return b, a, np.linalg.norm(b[index] - b_low, axis=1), None
     sample = np.ascontiguousarray(points[index])
-    check = TreeSettings(*ESTIMATE_TREE)
+    check = TreeSum(elements, *ESTIMATE_TREE)
     b_ref = _field(sample, elements, f"{label}, error estimate", progress, fast="tree", tree=check)[0]
-    b_low = _field(sample, low, f"{label}, error estimate", progress, MAX_SUBDIVISIONS // 2, "tree", check)[0]
-    tries = [TreeSettings(*t) for t in TREE_SETTINGS] if fast == "tree" else [None]
+    first, chosen = 0, None
     if fast == "tree" and len(points) > PILOT_MIN_LEAVES * TREE_TARGET_LEAF:
-        tries = tries[_pilot_choice(points, elements, tries, check):]
-    for k, tree in enumerate(tries):
-        name = label if k == 0 else f"{label}, treecode order {tree.order}"  # type: ignore[union-attr]
+        first, chosen = _pilot_choice(points, elements, check)
+    del check  # its source tree is the largest; free it before the map's own
+    b_low = _field(sample, low, f"{label}, error estimate", progress, MAX_SUBDIVISIONS // 2, "tree",
+                   TreeSum(low, *ESTIMATE_LOW_TREE))[0]
+    tries = TREE_SETTINGS[first:] if fast == "tree" else (None,)
+    for k, setting in enumerate(tries):
+        tree = None if setting is None else chosen if k == 0 and chosen is not None else TreeSum(elements, *setting)
+        chosen = None
+        name = label if k == 0 else f"{label}, treecode order {setting[0]}"  # type: ignore[index]
         b, a = _field(points, elements, name, progress, fast=fast, tree=tree)
         summed = np.linalg.norm(b[index] - b_ref, axis=1)
         if np.max(summed / np.maximum(np.linalg.norm(b_ref, axis=1), _floor(np.linalg.norm(b, axis=1))),
                   initial=0.0) <= TREE_RETRY_TOLERANCE:
             break
-    return b, a, summed + np.linalg.norm(b_ref - b_low, axis=1), tree
+    return b, a, summed + np.linalg.norm(b_ref - b_low, axis=1), None if tree is None else tree.settings
