@@ -225,8 +225,8 @@ def reference_field(
     evaluation over the two finest chord levels (:func:`fieldenergy.fieldmap.field_with_error`).
     Above it (or with ``method="fast"`` or ``"fmm"``), the field is integrated along the exact
     paths by fast summation (:func:`fieldenergy.fastfield.fast_field`) with exact near corrections; its error
-    is estimated on a sample against a lower-order rule, and the largest relative error seen
-    there is applied to every point (times its |B|).
+    is estimated on a sample as for a map (:func:`_field_and_error`), and the largest relative
+    error seen there is applied to every point (times its |B|).
     """
     from fieldenergy.fieldmap import field_with_error
 
