@@ -83,9 +83,10 @@ TREE_THETA: float = 0.5
 
 #: Treecode settings (order, theta, point sources per element) tried in turn for a map whose
 #: estimated error is too large (see :mod:`fieldenergy.maps.evaluate`): the default, then one
-#: for fields that nearly cancel (higher order, then more sources). Both the treecode's error and the point-source rule's are
-#: fractions of the sum of the contributions' sizes, so where those cancel (just outside a long solenoid |B| is ~1e-3 of
-#: its peak) they grow relative to the local field. Measured on 3000 points 1 to 10 cm
+#: for fields that nearly cancel (higher order, then more sources). Both the treecode's error
+#: and the point-source rule's are fractions of the sum of the contributions' sizes, so where
+#: those cancel (just outside a long solenoid |B| is ~1e-3 of its peak) they grow relative to
+#: the local field. Measured on 3000 points 1 to 10 cm
 #: outside a solenoid of 1000 loops of 25 elements: (7, 0.5, 4) 6.7e-6; (9, 0.5, 4) 6.6e-7,
 #: the source rule's floor; (9, 0.5, 6) 7.3e-9 at 1.2x the time. On the 100-loop benchmark
 #: order 9 alone costs 1.7x, so a higher setting is used only when the first falls short.
