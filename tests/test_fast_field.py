@@ -133,6 +133,16 @@ def test_chunked_sums_equal_one_call(monkeypatch: pytest.MonkeyPatch, engine: st
     np.testing.assert_allclose(a_chunked, a_one, rtol=0, atol=FAST_RTOL * 1e-1 * np.abs(a_one).max())
 
 
+def test_b_alone_equals_b_of_the_full_sum() -> None:
+    case = _random_case(2)
+    elements = exact_elements(case, discretise(case))
+    pts = _targets(case, np.random.default_rng(8), 400)
+    b_full, _ = fast_field(pts, elements)
+    b_alone, a_alone = fast_field(pts, elements, potential=False)
+    assert a_alone is None
+    np.testing.assert_allclose(b_alone, b_full, rtol=1e-13, atol=1e-13 * np.abs(b_full).max())
+
+
 def _solenoid() -> Case:
     """Invented: a long solenoid, 1000 loops (radius 0.1 m, pitch 4 mm, 0.5 mm wire) of 12 arcs."""
     loop = Coil("loop", "c", RoundSection(5e-4), CirclePath(0.1, [0, 0, 0], [0, 0, 1]),

@@ -212,6 +212,19 @@ def test_circle_field_on_axis_and_error_estimate() -> None:
     assert res.relative_error < FAR_RTOL and len(res.error) == 61
 
 
+def test_error_estimate_is_reported_apart_near_and_far_from_the_conductors() -> None:
+    radius, current = 0.1, 3.0
+    res = evaluate_map(_loop_case(radius, current), LineMap("radial", [0.05, 0, 0.001], [0.15, 0, 0.001], 200))
+    size = np.hypot(2 * radius, 2 * radius)  # the loop's bounding-box diagonal
+    assert res.near_distance == pytest.approx(0.05 * size)
+    surface = np.hypot(res.points[res.error_index, 0] - radius, 0.001) - 1e-4  # the 0.1 mm core
+    np.testing.assert_array_equal(res.error_near, surface < 0.05 * size)
+    assert 0 < res.error_near.sum() < len(res.error_near)
+    far, near = res.relative_error_far, res.relative_error_near
+    assert far is not None and near is not None and res.relative_error == max(far, near)
+    assert far < FAR_RTOL and near < NEAR_RTOL
+
+
 def test_helmholtz_pair_is_flat_to_fourth_order() -> None:
     """d2Bz/dz2 vanishes at the centre of a pair at spacing R (Helmholtz; from memory), while a
     single loop's, -3 mu0 I / (2 R^3) from the on-axis formula (common practice), does not."""
@@ -286,6 +299,10 @@ def test_export_reads_back_through_meshio_and_csv(pair_results: tuple[Case, list
     assert len([f for f in files if f.name.startswith("mid_")]) == 3  # |B|, u, homogeneity
     summary = json.loads((tmp_path / "maps.json").read_text())
     assert [m["name"] for m in summary["maps"]] == ["mid", "axis", "vol", "probes"]
+    for entry, res in zip(summary["maps"], results):
+        assert entry["estimated_relative_error"] == res.relative_error
+        assert (entry["estimated_relative_error_far"], entry["estimated_relative_error_near"]) == (
+            res.relative_error_far, res.relative_error_near)
 
 
 def test_cli_map_writes_declared_maps(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:

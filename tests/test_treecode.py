@@ -57,6 +57,17 @@ def test_all_four_interaction_kinds_occur_and_agree_with_plain_sums() -> None:
     assert seen == {0, 1, 2, 3}
 
 
+def test_b_alone_and_a_alone_equal_the_rows_of_the_full_sum() -> None:
+    pos, chg, targets = _problem(6000, 3000, 5)
+    tree = SourceTree(pos, chg, 3, 30)
+    both = tree_field(targets, tree, 0.5, 30)
+    b_only, a_only = tree_field(targets, tree, 0.5, 30, "B"), tree_field(targets, tree, 0.5, 30, "A")
+    # the same pairs summed in the same order: equal to rounding
+    np.testing.assert_allclose(b_only[:3], both[:3], rtol=1e-13, atol=0)
+    np.testing.assert_allclose(a_only[3:], both[3:], rtol=1e-13, atol=0)
+    assert not b_only[3:].any() and not a_only[:3].any()
+
+
 def test_error_falls_geometrically_with_grid_order() -> None:
     """Chebyshev interpolation of a function analytic beyond the cell converges geometrically
     in the order (Trefethen, Approximation Theory and Approximation Practice, 2013, ch. 8)."""

@@ -8,6 +8,7 @@ from __future__ import annotations
 import argparse
 import logging
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -22,6 +23,9 @@ from fieldenergy.cli._progress import terminal_progress
 from fieldenergy.errors import CaseError
 from fieldenergy.fieldmap import field_with_error
 from fieldenergy.output.points_csv import read_points, write_field_table
+
+if TYPE_CHECKING:
+    from fieldenergy.maps.evaluate import MapResult
 
 HELP = ("field maps the case declares ([[map]] tables: VTK, CSV, PNG), or B and A at the points "
         "of a CSV file (--points, columns x,y,z in m)")
@@ -58,6 +62,14 @@ def run(args: argparse.Namespace) -> int:
     return 0
 
 
+def _split(res: MapResult) -> str:
+    """The estimate apart for sampled points far from and near the conductors, when both occur."""
+    far, near = res.relative_error_far, res.relative_error_near
+    if far is None or near is None:
+        return ""
+    return f": {far:.1e} farther than {res.near_distance * 1e3:.3g} mm from the conductors, {near:.1e} nearer"
+
+
 def _run_maps(args: argparse.Namespace) -> int:
     """Evaluate and export every [[map]] of the case; print one line per map."""
     from fieldenergy.discretise import discretise
@@ -75,6 +87,6 @@ def _run_maps(args: argparse.Namespace) -> int:
         mag = np.linalg.norm(res.b, axis=1)
         how = res.method if res.tree is None else f"treecode order {res.tree.order}, theta {res.tree.theta}"
         print(f"map {res.spec.name!r} ({res.spec.kind}, {len(res.points)} points, {how}): |B| from {mag.min():.6e} T "
-              f"to {mag.max():.6e} T; estimated relative error of B {res.relative_error:.1e} (on a sample)")
+              f"to {mag.max():.6e} T; estimated relative error of B {res.relative_error:.1e} (on a sample{_split(res)})")
     print(f"{len(files)} files written to {out_dir}")
     return 0

@@ -142,7 +142,7 @@ def fast_grouped_inductance(
         if mask.any():
             tree = SourceTree(pos[mask].reshape(-1, 3), (weights[mask, None, None] * chg[mask]).reshape(-1, 3),
                               order, LEAF)
-            phi = tree_field(targets, tree, theta, LEAF, a_only=True)[3:]
+            phi = tree_field(targets, tree, theta, LEAF, fields="A")[3:]
             per_point = np.einsum("ij,ji->i", target_chg, phi)
             per_seg = np.bincount(seg_of_point, per_point, minlength=n)
             far[:, q] = MU0_OVER_4PI * np.bincount(groups, per_seg, minlength=n_groups)

@@ -38,6 +38,9 @@ from numba import njit, prange
 # Kinds of cell interactions.
 _DIRECT, _PROXY_SOURCES, _PROXY_TARGETS, _PROXY_BOTH = 0, 1, 2, 3
 
+#: What a sum computes (the kernels' ``mode``): B and A, A alone, or B alone.
+FIELD_MODES: dict[str, int] = {"BA": 0, "A": 1, "B": 2}
+
 #: Smallest half-width of a cell's interpolation box along an axis, relative to its largest
 #: (a flat cluster, e.g. the targets of a plane map, still gets distinct grid points).
 _MIN_ASPECT = 1e-3
@@ -402,19 +405,40 @@ def _p2p_a(x, y, z, sx, sy, sz, qx, qy, qz, s0, s1, a0, a1, a2):
 
 
 @njit(cache=True, inline="always", error_model="numpy")
-def _interact(a_only, x, y, z, sx, sy, sz, qx, qy, qz, s0, s1, b0, b1, b2, a0, a1, a2):
-    """:func:`_p2p`, or :func:`_p2p_a` when only A is wanted (B is then left at zero)."""
-    if a_only:
+def _p2p_b(x, y, z, sx, sy, sz, qx, qy, qz, s0, s1, b0, b1, b2):
+    """Add B (b0, b1, b2) alone of sources s0..s1 at the points x, y, z (as :func:`_p2p`)."""
+    for j in range(s0, s1):
+        yx, yy, yz = sx[j], sy[j], sz[j]
+        cx, cy, cz = qx[j], qy[j], qz[j]
+        for i in range(x.shape[0]):
+            dx = x[i] - yx
+            dy = y[i] - yy
+            dz = z[i] - yz
+            r2 = dx * dx + dy * dy + dz * dz
+            inv = 1.0 / np.sqrt(r2) if r2 > 0.0 else 0.0
+            inv3 = inv * inv * inv
+            b0[i] += (cy * dz - cz * dy) * inv3
+            b1[i] += (cz * dx - cx * dz) * inv3
+            b2[i] += (cx * dy - cy * dx) * inv3
+
+
+@njit(cache=True, inline="always", error_model="numpy")
+def _interact(mode, x, y, z, sx, sy, sz, qx, qy, qz, s0, s1, b0, b1, b2, a0, a1, a2):
+    """:func:`_p2p` (mode 0), :func:`_p2p_a` (1: A alone, B left at zero) or :func:`_p2p_b`
+    (2: B alone, A left at zero); see :data:`FIELD_MODES`."""
+    if mode == 1:
         _p2p_a(x, y, z, sx, sy, sz, qx, qy, qz, s0, s1, a0, a1, a2)
+    elif mode == 2:
+        _p2p_b(x, y, z, sx, sy, sz, qx, qy, qz, s0, s1, b0, b1, b2)
     else:
         _p2p(x, y, z, sx, sy, sz, qx, qy, qz, s0, s1, b0, b1, b2, a0, a1, a2)
 
 
 @njit(cache=True, parallel=True, error_model="numpy")
 def evaluate_points(tx, ty, tz, t_start, t_end, t_nch, t_parent, it_start, it_src, it_kind,
-                    sx, sy, sz, qx, qy, qz, s_start, s_end, s_box, s_proxy, charges, nodes, a_only, out):
-    """Direct and proxy-source interactions into the targets' rows of out (6, m); with
-    ``a_only``, A alone (rows 3-5).
+                    sx, sy, sz, qx, qy, qz, s_start, s_end, s_box, s_proxy, charges, nodes, mode, out):
+    """Direct and proxy-source interactions into the targets' rows of out (6, m): B (rows
+    0-2) and A (rows 3-5), or one of them by ``mode`` (see :data:`FIELD_MODES`).
 
     Each leaf target cell takes the interactions listed for it and for its ancestors
     (it_start: CSR by target cell), restricted to its own points, so threads never share rows.
@@ -438,11 +462,11 @@ def evaluate_points(tx, ty, tz, t_start, t_end, t_nch, t_parent, it_start, it_sr
             for k in range(it_start[cell], it_start[cell + 1]):
                 s = it_src[k]
                 if it_kind[k] == _DIRECT:
-                    _interact(a_only, x, y, z, sx, sy, sz, qx, qy, qz, s_start[s], s_end[s], b0, b1, b2, a0, a1, a2)
+                    _interact(mode, x, y, z, sx, sy, sz, qx, qy, qz, s_start[s], s_end[s], b0, b1, b2, a0, a1, a2)
                 else:
                     grid_points(s_box, s, nodes, gx, gy, gz)
                     ch = charges[s_proxy[s]]
-                    _interact(a_only, x, y, z, gx, gy, gz, ch[:, 0], ch[:, 1], ch[:, 2], 0, p3, b0, b1, b2, a0, a1, a2)
+                    _interact(mode, x, y, z, gx, gy, gz, ch[:, 0], ch[:, 1], ch[:, 2], 0, p3, b0, b1, b2, a0, a1, a2)
             cell = t_parent[cell]
         for i in range(w):
             out[0, t0 + i] += b0[i]
@@ -455,10 +479,10 @@ def evaluate_points(tx, ty, tz, t_start, t_end, t_nch, t_parent, it_start, it_sr
 
 @njit(cache=True, parallel=True, error_model="numpy")
 def evaluate_proxies(cells, it_start, it_src, it_kind, t_box, t_proxy, n_t_proxy,
-                     sx, sy, sz, qx, qy, qz, s_start, s_end, s_box, s_proxy, charges, nodes, a_only):
+                     sx, sy, sz, qx, qy, qz, s_start, s_end, s_box, s_proxy, charges, nodes, mode):
     """Fields (n_t_proxy, 6, P) at the proxy targets of target cells, from proxy-target
-    interactions (source points) and proxy-both interactions (proxy sources); with
-    ``a_only``, A alone."""
+    interactions (source points) and proxy-both interactions (proxy sources); B, A or
+    both by ``mode``."""
     n = nodes.shape[0]
     p3 = n * n * n
     values = np.zeros((n_t_proxy, 6, p3))
@@ -477,11 +501,11 @@ def evaluate_proxies(cells, it_start, it_src, it_kind, t_box, t_proxy, n_t_proxy
         for k in range(it_start[c], it_start[c + 1]):
             s = it_src[k]
             if it_kind[k] == _PROXY_TARGETS:
-                _interact(a_only, gx, gy, gz, sx, sy, sz, qx, qy, qz, s_start[s], s_end[s], b0, b1, b2, a0, a1, a2)
+                _interact(mode, gx, gy, gz, sx, sy, sz, qx, qy, qz, s_start[s], s_end[s], b0, b1, b2, a0, a1, a2)
             else:
                 grid_points(s_box, s, nodes, sgx, sgy, sgz)
                 ch = charges[s_proxy[s]]
-                _interact(a_only, gx, gy, gz, sgx, sgy, sgz, ch[:, 0], ch[:, 1], ch[:, 2], 0, p3, b0, b1, b2, a0, a1,
+                _interact(mode, gx, gy, gz, sgx, sgy, sgz, ch[:, 0], ch[:, 1], ch[:, 2], 0, p3, b0, b1, b2, a0, a1,
                           a2)
         out = values[t_proxy[c]]
         for g in range(p3):
@@ -578,9 +602,11 @@ class SourceTree:
 
 
 def tree_field(targets: np.ndarray, sources: SourceTree, theta: float, leaf_size: int,
-               a_only: bool = False) -> np.ndarray:
+               fields: str = "BA") -> np.ndarray:
     """B and A (rows Bx, By, Bz, Ax, Ay, Az; shape (6, m)) of the sources at targets (m, 3),
-    without the factor mu0 / (4 pi); with ``a_only``, A alone (the B rows stay zero)."""
+    without the factor mu0 / (4 pi). ``fields`` "A" or "B" sums that one alone (the other's
+    rows stay zero; B alone costs about 0.8 of both)."""
+    mode = FIELD_MODES[fields]
     src = sources
     pts = np.ascontiguousarray(targets, dtype=np.float64)
     perm, start, end, first, nch, parent, level, box = build_tree(pts, leaf_size)
@@ -592,7 +618,7 @@ def tree_field(targets: np.ndarray, sources: SourceTree, theta: float, leaf_size
     order, csr = _csr(it_t[to_points], len(count))
     evaluate_points(tx, ty, tz, start, end, nch, parent, csr, it_s[to_points][order], it_k[to_points][order],
                     src.x, src.y, src.z, src.q[0], src.q[1], src.q[2], src.start, src.end, src.box, src.proxy,
-                    src.charges, src.nodes, a_only, out)
+                    src.charges, src.nodes, mode, out)
     t_proxy = np.full(len(count), -1, np.int64)
     big = count > src.n_proxy
     t_proxy[big] = np.arange(int(big.sum()))
@@ -600,7 +626,7 @@ def tree_field(targets: np.ndarray, sources: SourceTree, theta: float, leaf_size
         order, csr = _csr(it_t[~to_points], len(count))
         values = evaluate_proxies(np.nonzero(big)[0], csr, it_s[~to_points][order], it_k[~to_points][order], box,
                                   t_proxy, int(big.sum()), src.x, src.y, src.z, src.q[0], src.q[1], src.q[2],
-                                  src.start, src.end, src.box, src.proxy, src.charges, src.nodes, a_only)
+                                  src.start, src.end, src.box, src.proxy, src.charges, src.nodes, mode)
         downward(values, tx, ty, tz, start, end, first, nch, level, box, t_proxy, src.nodes, src.weights, out)
     result = np.empty_like(out)
     result[:, perm] = out

@@ -146,6 +146,9 @@ def _summary_entry(res: MapResult, files: list[Path]) -> dict[str, object]:
         "B_min_T": float(mag.min()),
         "B_reference_T": res.b_reference.tolist(),
         "estimated_relative_error": res.relative_error,
+        "estimated_relative_error_far": res.relative_error_far,
+        "estimated_relative_error_near": res.relative_error_near,
+        "near_distance_m": res.near_distance,
         "settings": _settings(res),
         "files": [f.name for f in files],
     }

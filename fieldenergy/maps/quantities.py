@@ -42,10 +42,10 @@ def homogeneity_ppm(b: Array, b_ref: Array) -> Array:
     return 1.0e6 * (np.linalg.norm(b, axis=1) - ref) / ref
 
 
-def map_quantities(quantities: tuple[str, ...], b: Array, a: Array, b_ref: Array | None) -> dict[str, Array]:
+def map_quantities(quantities: tuple[str, ...], b: Array, a: Array | None, b_ref: Array | None) -> dict[str, Array]:
     """The requested quantities of a map, by name: vectors (m, 3), scalars (m,).
 
-    ``homogeneity`` needs ``b_ref``, the field at the map's reference point.
+    ``A`` needs ``a``; ``homogeneity`` needs ``b_ref``, the field at the map's reference point.
     """
     out: dict[str, Array] = {}
     for q in quantities:
@@ -54,6 +54,8 @@ def map_quantities(quantities: tuple[str, ...], b: Array, a: Array, b_ref: Array
         elif q == "|B|":
             out[q] = np.linalg.norm(b, axis=1)
         elif q == "A":
+            if a is None:
+                raise ValueError("quantity A asked for but the vector potential was not computed")
             out[q] = a
         elif q == "u":
             out[q] = energy_density(b)
