@@ -127,8 +127,9 @@ def fast_grouped_inductance(
     piece, arc, loop = filaments.chain_pieces()
     perm = np.argsort(piece, kind="stable")
     starts, ends = filaments.starts[perm], filaments.ends[perm]
-    weights, gmd, groups, piece, arc, loop = (a[perm] for a in (filaments.weights, filaments.gmd, groups, piece,
-                                                                  arc, loop))
+    weights, gmd = filaments.weights[perm], filaments.gmd[perm]
+    groups, piece = groups[perm], piece[perm]
+    arc, loop = arc[perm], loop[perm]
     n_pieces = int(piece.max()) + 1 if n else 0
     piece_first = np.searchsorted(piece, np.arange(n_pieces)).astype(np.int64)
     piece_count = np.bincount(piece, minlength=n_pieces).astype(np.int64)

@@ -160,7 +160,8 @@ class _CircuitFields:
 
     def _tree(self, p: int) -> SegmentTreeSum:
         if p not in self.trees:
-            self.trees[p] = SegmentTreeSum(*self.parts[p], order=FIELD_TREE_ORDER, theta=FIELD_TREE_THETA)
+            starts, ends, weights, radii = self.parts[p]
+            self.trees[p] = SegmentTreeSum(starts, ends, weights, radii, order=FIELD_TREE_ORDER, theta=FIELD_TREE_THETA)
         return self.trees[p]
 
 

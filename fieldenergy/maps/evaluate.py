@@ -270,6 +270,7 @@ def reference_field(
     index = _estimate_index(len(pts))
     low = exact_elements(case, model, ESTIMATE_ORDER)
     b, a, error, _ = _field_and_error(pts, elements, low, index, f"reference field ({engine})", progress, engine)
+    assert a is not None  # summed with the potential
     mag = np.linalg.norm(b, axis=1)
     floor = _floor(mag)
     return b, a, float(np.max(error / np.maximum(mag[index], floor), initial=0.0)) * np.maximum(mag, floor)
