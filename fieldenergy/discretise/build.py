@@ -95,10 +95,13 @@ def discretise(case: Case, level: int = 0, discretisation: Discretisation | None
         circuit = _circuit_of(case, coil)
         turns = _turns_of(coil)
         layout = section_layout(coil.section, settings.section_grid, coil.name, settings.section_refinement)
+        # A repeat moves its copies rigidly and keeps the path parameter, so every copy has
+        # copy 0's chords (sagittas and turning angles do not change under a rigid motion).
+        grid: ChordGrid | None = None
         for name, curve in coil_instances(coil):
             if name in names:
                 raise CaseError(f"coil instance name {name!r} is used twice; coil names must be unique", where=f"coil {coil.name!r}")
-            chains = _instance_chains(name, curve, coil, layout, settings, level)
+            chains, grid = _instance_chains(name, curve, coil, layout, settings, level, grid)
             names.append(name)
             curves.append(curve)
             coil_circuit.append(circuit)
@@ -123,21 +126,32 @@ def discretise(case: Case, level: int = 0, discretisation: Discretisation | None
 
 
 def _instance_chains(
-    name: str, curve: Curve, coil: Coil, layout: SectionLayout, settings: Discretisation, level: int
-) -> _Chains:
+    name: str, curve: Curve, coil: Coil, layout: SectionLayout, settings: Discretisation, level: int,
+    grid: ChordGrid | None = None,
+) -> tuple[_Chains, ChordGrid]:
+    """The chains of one coil instance, and its chord grid.
+
+    ``grid``, if given, is copy 0's: used as is, and the chord and fold checks, passed by copy
+    0 and unchanged by a rigid motion, are not repeated.
+    """
     size = curve.size()
-    tolerance = settings.sagitta if settings.sagitta is not None else settings.sagitta_fraction * size
-    grid = chord_grid(curve, tolerance, settings.max_angle, level, name)
+    copy = grid is not None
+    if grid is None:
+        tolerance = settings.sagitta if settings.sagitta is not None else settings.sagitta_fraction * size
+        grid = chord_grid(curve, tolerance, settings.max_angle, level, name)
     centre = curve.position(grid.t[:-1], grid.piece)
     centre = np.vstack([centre, centre[:1]])  # the loop closes exactly
-    _check_chords(centre, grid, size, name)
+    if not copy:
+        _check_chords(centre, grid, size, name)
     if layout.is_centred:
-        check_fold(curve, grid, centre, layout, None, name)
+        if not copy:
+            check_fold(curve, grid, centre, layout, None, name)
         points = centre[None]
     else:
         reference = None if coil.reference is None else mapped_direction(curve, coil.reference)
         frames = node_frames(curve, grid, reference, name)
-        check_fold(curve, grid, centre, layout, frames, name)
+        if not copy:
+            check_fold(curve, grid, centre, layout, frames, name)
         points = centre[None] + node_offsets(frames, layout.offsets, name)
     k = layout.n_filaments
     return _Chains(
@@ -147,7 +161,7 @@ def _instance_chains(
         t1=np.tile(grid.t[1:], k),
         n_chords=grid.n_chords,
         sagitta=grid.sagitta,
-    )
+    ), grid
 
 
 def _assemble(
