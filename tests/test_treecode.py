@@ -49,7 +49,7 @@ def test_all_four_interaction_kinds_occur_and_agree_with_plain_sums() -> None:
     ref = point_elements_numpy(targets, pos, chg)
     seen: set[int] = set()
     for target_leaf in (30, 400):  # small target leaves use proxy sources, large ones proxy targets
-        perm, start, end, first, nch, parent, level, box = build_tree(targets, target_leaf)
+        _, start, end, first, nch, _, _, box = build_tree(targets, target_leaf)
         kinds = traverse(box, end - start, first, nch, tree.box, tree.count, tree.first, tree.nch, 0.5, tree.n_proxy)[2]
         seen |= {int(k) for k in np.unique(kinds)}
         # an order-3 grid at theta = 0.5: measured 2e-3 and 4e-5; the bound says only that it works
