@@ -18,20 +18,26 @@ down to a fraction of the core radius, by distances to points sampled along the 
 (a k-d tree), then refined where the error estimate is largest. Every point of one
 refinement generation is evaluated in one batch, one Biot-Savart call per circuit; the cost
 is (points) x (segments).
+
+Each diagonal entry L_pp gets an octree of its own, seeded towards circuit p's conductors
+and summing circuit p's segments alone: |B_p|^2 needs fine cells only at p's core surfaces.
+The mutual entries share one more octree over all circuits, seeded coarser (next to one
+conductor the other circuits' fields are smooth, so B_p . B_q has a smaller kink). On the
+two-circuit bundled cases this halved the route's time against one octree for all entries.
 """
 
 from __future__ import annotations
 
 import math
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
 import numpy as np
 from numpy.typing import ArrayLike, NDArray
 
 from fieldenergy.constants import MU0
-from fieldenergy.energy.cubature import CubatureResult, adaptive_octree, exterior_cube, seeded_cells
+from fieldenergy.energy.cubature import adaptive_octree, exterior_cube, seeded_cells
 from fieldenergy.errors import GeometryError
 from fieldenergy.fastfield import SegmentTreeSum
 from fieldenergy.kernels._biot_savart import b_from_segments
@@ -58,6 +64,13 @@ SEED_SIZE_OVER_DISTANCE: float = 1.0
 #: Seeding stops at cells this many core radii across; error-driven refinement goes further
 #: only where the estimate asks for it.
 SEED_CORE_RADII: float = 4.0
+
+#: The mutual entries' octree is seeded only to cells this many core radii across: next to a
+#: conductor B_p . B_q has a smaller kink than |B_p|^2 (the other circuit's field is smooth there).
+MUTUAL_SEED_CORE_RADII: float = 16.0
+
+#: Share of the point budget the mutual entries' octree may claim, against 1 for each circuit's own.
+MUTUAL_BUDGET_WEIGHT: float = 0.25
 
 #: Cells along each axis of the first uniform grid of the cube.
 FIRST_GRID: int = 4
@@ -145,17 +158,20 @@ class _CircuitFields:
                                     (filaments.starts, filaments.ends, filaments.weights, filaments.radii)))
         self.trees: dict[int, SegmentTreeSum] = {}
 
-    def __call__(self, points: Array) -> Array:
-        out = np.zeros((len(self.parts), len(points), 3))
-        for p, (s, e, w, r) in enumerate(self.parts):
+    def __call__(self, points: Array, circuits: Sequence[int] | None = None) -> Array:
+        """B of the given circuits (default all), shape (len(circuits), m, 3)."""
+        chosen = range(len(self.parts)) if circuits is None else circuits
+        out = np.zeros((len(chosen), len(points), 3))
+        for k, p in enumerate(chosen):
+            s, e, w, r = self.parts[p]
             if len(s) == 0:
                 continue
             if len(s) >= FIELD_TREE_MIN_SEGMENTS and float(len(points)) * len(s) > FIELD_TREE_MIN_PAIRS:
-                self._tree(p)(np.ascontiguousarray(points), out[p])
+                self._tree(p)(np.ascontiguousarray(points), out[k])
                 continue
             for i0 in range(0, len(points), _CHUNK):
                 pts = np.ascontiguousarray(points[i0 : i0 + _CHUNK])
-                b_from_segments(pts, s, e, w, r, out[p, i0 : i0 + _CHUNK])
+                b_from_segments(pts, s, e, w, r, out[k, i0 : i0 + _CHUNK])
         return out
 
     def _tree(self, p: int) -> SegmentTreeSum:
@@ -179,41 +195,80 @@ def circuit_fields(points: Array, filaments: Filaments) -> Array:
     return _CircuitFields(filaments)(points)
 
 
-def _density(filaments: Filaments) -> tuple[Callable[[Array], Array], NDArray[np.int64], NDArray[np.int64]]:
-    """Integrand of the upper-triangle entries B_p . B_q / mu0 and their (p, q) indices."""
-    rows, cols = np.triu_indices(filaments.n_circuits)
-    fields = _CircuitFields(filaments)
+def _density(
+    filaments: Filaments,
+    entries: tuple[NDArray[np.int64], NDArray[np.int64]] | None = None,
+    fields: _CircuitFields | None = None,
+) -> tuple[Callable[[Array], Array], NDArray[np.int64], NDArray[np.int64]]:
+    """Integrand of the entries B_p . B_q / mu0 and their (p, q) indices (default: the upper
+    triangle). Only the circuits the entries name are evaluated."""
+    rows, cols = np.triu_indices(filaments.n_circuits) if entries is None else entries
+    fields = _CircuitFields(filaments) if fields is None else fields
+    circuits = sorted(set(rows.tolist()) | set(cols.tolist()))
+    where = {p: k for k, p in enumerate(circuits)}
 
     def f(points: Array) -> Array:
-        b = fields(points)
+        b = fields(points, circuits)
         out = np.empty((len(points), len(rows)))
         for k, (p, q) in enumerate(zip(rows, cols)):
-            out[:, k] = np.einsum("mi,mi->m", b[p], b[q])
+            out[:, k] = np.einsum("mi,mi->m", b[where[p]], b[where[q]])
         out *= 1.0 / MU0
         return out
 
     return f, rows, cols
 
 
-def _seed_rule(filaments: Filaments) -> Callable[[Array, Array], NDArray[np.bool_]]:
-    """should_split(centres, halves) from distances to points sampled along the segments."""
+def _seed_rule(
+    filaments: Filaments, chosen: NDArray[np.bool_], core_radii: float
+) -> Callable[[Array, Array], NDArray[np.bool_]]:
+    """should_split(centres, halves) from distances to points sampled along the chosen segments."""
     from scipy.spatial import cKDTree  # a heavy import, needed here only
 
-    lengths = np.linalg.norm(filaments.ends - filaments.starts, axis=1)
-    spacing = np.maximum(filaments.radii, lengths.sum() / MAX_SAMPLES)
+    starts, ends, radii = filaments.starts[chosen], filaments.ends[chosen], filaments.radii[chosen]
+    lengths = np.linalg.norm(ends - starts, axis=1)
+    spacing = np.maximum(radii, lengths.sum() / MAX_SAMPLES)
     counts = np.maximum(1, np.ceil(lengths / spacing).astype(np.int64))
     seg = np.repeat(np.arange(len(lengths)), counts)
     first = np.cumsum(counts) - counts
     t = (np.arange(len(seg)) - first[seg] + 0.5) / counts[seg]
-    samples = filaments.starts[seg] + t[:, None] * (filaments.ends - filaments.starts)[seg]
+    samples = starts[seg] + t[:, None] * (ends - starts)[seg]
     tree = cKDTree(samples)
-    reach = SEED_CORE_RADII * filaments.radii[seg] + 0.5 * (lengths / counts)[seg]
+    reach = core_radii * radii[seg] + 0.5 * (lengths / counts)[seg]
 
     def should_split(centres: Array, halves: Array) -> NDArray[np.bool_]:
         dist, idx = tree.query(centres)
         return 2.0 * halves > SEED_SIZE_OVER_DISTANCE * np.maximum(dist, reach[idx])
 
     return should_split
+
+
+@dataclass(frozen=True, slots=True)
+class _Group:
+    """Matrix entries integrated on one octree: their positions in the upper triangle, the
+    circuits whose fields they need, and the segments the octree is seeded towards."""
+
+    entries: NDArray[np.int64]
+    circuits: tuple[int, ...]
+    segments: NDArray[np.bool_]
+    seed_core_radii: float
+    budget_weight: float
+
+
+def _groups(filaments: Filaments) -> list[_Group]:
+    """One octree per diagonal entry (its own circuit's field only), then one for all mutual entries.
+
+    A diagonal entry needs refinement only at its own circuit's core surfaces (where |B_p|^2
+    has its kinks), and there only its own circuit's segments are summed; the mutual entries
+    B_p . B_q are smaller next to any one conductor and share one octree over all circuits.
+    """
+    n = filaments.n_circuits
+    rows, cols = np.triu_indices(n)
+    out = [_Group(np.flatnonzero((rows == p) & (cols == p)), (p,), filaments.circuit == p, SEED_CORE_RADII, 1.0)
+           for p in range(n)]
+    if n > 1:
+        out.append(_Group(np.flatnonzero(rows != cols), tuple(range(n)), np.ones(filaments.n_segments, bool),
+                          MUTUAL_SEED_CORE_RADII, MUTUAL_BUDGET_WEIGHT))
+    return [g for g in out if g.segments.any()]
 
 
 def field_inductance(
@@ -230,13 +285,16 @@ def field_inductance(
     filaments
         The discretised conductors (cores of radius ``radii``; ``weights`` ampere-turns per A).
     rel_tol
-        Target relative error of the matrix (largest entry error over sqrt(L_pp L_qq)).
+        Target relative error of every entry (its error over sqrt(L_pp L_qq)).
     max_points
-        Budget of integrand evaluations; past it the result has ``converged=False``.
+        Budget of integrand evaluations, counted as points at which every segment is summed
+        (an octree that sums only some circuits' segments spends their share of a point);
+        the octrees share it in turn. Past it the result has ``converged=False``.
     progress
         Called after each refinement generation with the share of the work done, 0 to 1:
-        the larger of the budget spent and the error's progress from its first value towards
-        the tolerance, on a log scale (an estimate: the cubature does not know its end).
+        per octree, the larger of its budget spent and the error's progress from its first
+        value towards the tolerance, on a log scale (an estimate: the cubature does not know
+        its end).
 
     Returns
     -------
@@ -257,71 +315,110 @@ def field_inductance(
     """
     _check(filaments, rel_tol)
     t0 = time.perf_counter()
-    f, rows, cols = _density(filaments)
+    fields = _CircuitFields(filaments)
+    f_all, rows, cols = _density(filaments, fields=fields)
     lo = np.minimum(filaments.starts, filaments.ends).min(axis=0) - filaments.radii.max()
     hi = np.maximum(filaments.starts, filaments.ends).max(axis=0) + filaments.radii.max()
     centre, half = 0.5 * (lo + hi), BOX_HALF_SIZE * float(np.max(hi - lo))
-    depth = int(math.ceil(math.log2(half / FIRST_GRID / float(filaments.radii.min())))) + 3
-    cells = seeded_cells(centre, half, FIRST_GRID, _seed_rule(filaments), depth)
-    diag = rows == cols
-    tail_fine, n_fine = exterior_cube(f, centre, half, *EXTERIOR_RULE)
-    tail_coarse, n_coarse = exterior_cube(f, centre, half, *EXTERIOR_CHECK_RULE)
+    tail_fine, n_fine = exterior_cube(f_all, centre, half, *EXTERIOR_RULE)
+    tail_coarse, n_coarse = exterior_cube(f_all, centre, half, *EXTERIOR_CHECK_RULE)
+    groups = _groups(filaments)
+    value, error = np.zeros(len(rows)), np.zeros(len(rows))
+    pairs_left = float(max_points) * filaments.n_segments
+    evaluations, n_cells, converged = 0, 0, True
+    for k, group in enumerate(groups):
+        n_seg = int(group.segments.sum())
+        weights_left = sum(g.budget_weight for g in groups[k:])
+        budget = int(pairs_left * group.budget_weight / weights_left / n_seg)
+        entries = (rows[group.entries], cols[group.entries])
+        f, _, _ = _density(filaments, entries, fields)
+        # scale of each entry: sqrt(L_pp L_qq), the diagonal from its own octree (it runs first)
+        diag_of = {int(p): int(np.flatnonzero((rows == p) & (cols == p))[0]) for p in range(filaments.n_circuits)}
+        known = np.abs(value + tail_fine)
+        fixed = np.sqrt(known[[diag_of[int(p)] for p in entries[0]]] * known[[diag_of[int(q)] for q in entries[1]]])
+        own = tail_fine[group.entries]
+        is_diag = entries[0] == entries[1]
 
-    def scale(total: Array) -> Array:
-        d = np.abs(total + tail_fine)[diag]  # L_pp in circuit order (triu_indices lists (p, p) in order)
-        return np.sqrt(d[rows] * d[cols])
+        def scale(total: Array, fixed: Array = fixed, own: Array = own, is_diag: NDArray[np.bool_] = is_diag) -> Array:
+            return np.where(is_diag, np.abs(total + own), fixed)
 
-    def cell_error(delta: Array, total: Array) -> Array:
-        return np.max(np.abs(delta) / scale(total), axis=1)
+        near = adaptive_octree(
+            f, *_seeded(filaments, group, centre, half), _cell_error(scale), tol=NEAR_TOLERANCE_SHARE * rel_tol,
+            n=CELL_GAUSS_POINTS, max_points=budget, total_error=_entry_error(scale),
+            on_generation=_reporter(progress, k, len(groups), budget, NEAR_TOLERANCE_SHARE * rel_tol),
+        )
+        value[group.entries], error[group.entries] = near.value, near.error
+        pairs_left -= float(near.n_points) * n_seg
+        evaluations += near.n_points * len(group.circuits)
+        n_cells += near.n_cells
+        converged = converged and near.converged
+    tail_err = np.abs(tail_fine - tail_coarse)
+    seconds = time.perf_counter() - t0
+    evaluations += (n_fine + n_coarse) * filaments.n_circuits
+    return _packaged(filaments.n_circuits, (rows, cols), (value, error), (tail_fine, tail_err),
+                     (evaluations, n_cells, converged), seconds)
 
-    def entry_error(delta: Array, total: Array) -> float:
-        # the largest entry's own error, as reported in relative_error (cells are marked by cell_error)
-        return float(np.max(np.abs(delta).sum(axis=0) / scale(total)))
 
-    near_tol = NEAR_TOLERANCE_SHARE * rel_tol
+def _seeded(filaments: Filaments, group: _Group, centre: Array, half: float) -> tuple[Array, Array]:
+    """Starting cells of a group's octree over the cube, seeded towards its segments."""
+    depth = math.ceil(math.log2(half / FIRST_GRID / float(filaments.radii[group.segments].min()))) + 3
+    rule = _seed_rule(filaments, group.segments, group.seed_core_radii)
+    return seeded_cells(centre, half, FIRST_GRID, rule, depth)
+
+
+def _cell_error(scale: Callable[[Array], Array]) -> Callable[[Array, Array], Array]:
+    """Per-cell error: the largest over the entries of |difference| / scale (cells are marked by it)."""
+    return lambda delta, total: np.max(np.abs(delta) / scale(total), axis=1)
+
+
+def _entry_error(scale: Callable[[Array], Array]) -> Callable[[Array, Array], float]:
+    """The error compared with the tolerance: the largest entry's own summed error over its scale."""
+    return lambda delta, total: float(np.max(np.abs(delta).sum(axis=0) / scale(total)))
+
+
+def _reporter(
+    progress: Callable[[float], None] | None, k: int, n_groups: int, budget: int, tol: float
+) -> Callable[[int, float], None] | None:
+    """on_generation for octree k of n_groups: reports the whole route's share of work done."""
+    if progress is None:
+        return None
     first: list[float] = []
     done = 0.0
 
     def on_generation(n_points: int, error: float) -> None:
         nonlocal done
-        if progress is None:
-            return
-        first.append(first[0] if first else error)
-        towards = math.log(first[0] / error) / math.log(first[0] / near_tol) if first[0] > near_tol and error > 0 else 1.0
-        done = max(done, min(1.0, n_points / max_points), min(1.0, max(0.0, towards)))
-        progress(done)
+        if not first:
+            first.append(error)
+        towards = math.log(first[0] / error) / math.log(first[0] / tol) if first[0] > tol and error > 0 else 1.0
+        done = max(done, min(1.0, n_points / max(budget, 1)), min(1.0, max(0.0, towards)))
+        progress(min(1.0, (k + done) / n_groups))
 
-    near = adaptive_octree(
-        f, *cells, cell_error, tol=near_tol, n=CELL_GAUSS_POINTS, max_points=max_points,
-        total_error=entry_error, on_generation=on_generation,
-    )
-    tail_err = np.abs(tail_fine - tail_coarse)
-    seconds = time.perf_counter() - t0
-    return _packaged(filaments.n_circuits, (rows, cols), near, (tail_fine, tail_err), n_fine + n_coarse, seconds)
+    return on_generation
 
 
 def _packaged(
     n: int,
     entries: tuple[NDArray[np.int64], NDArray[np.int64]],
-    near: CubatureResult,
+    near: tuple[Array, Array],
     tail: tuple[Array, Array],
-    n_tail: int,
+    counts: tuple[int, int, bool],
     seconds: float,
 ) -> FieldInductance:
     """Full symmetric matrices from the upper-triangle entries (p, q) of the near region and the tail."""
     rows, cols = entries
+
     def full(v: Array) -> Array:
         m = np.zeros((n, n))
         m[rows, cols] = v
         m[cols, rows] = v
         return m
 
-    matrix = full(near.value + tail[0])
-    error = full(near.error + tail[1])
+    matrix = full(near[0] + tail[0])
+    error = full(near[1] + tail[1])
     d = np.sqrt(np.abs(np.diag(matrix)))
     rel = float(np.max(error / np.outer(d, d)))
-    n_points = (near.n_points + n_tail) * n
-    return FieldInductance(matrix, error, full(tail[0]), rel, n_points, near.n_cells, near.converged, seconds)
+    n_points, n_cells, converged = counts
+    return FieldInductance(matrix, error, full(tail[0]), rel, n_points, n_cells, converged, seconds)
 
 
 def _check(filaments: Filaments, rel_tol: float) -> None:
