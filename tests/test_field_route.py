@@ -224,8 +224,8 @@ def test_route_gap_flag_and_hint() -> None:
     assert other.flagged and "A.J" in other.hint
 
 
-def loop_case() -> Case:
-    loop = Coil("loop", "c", RoundSection(0.002), CirclePath(0.05, [0, 0, 0], [0, 0, 1]))
+def loop_case(wire: float = 0.002) -> Case:
+    loop = Coil("loop", "c", RoundSection(wire), CirclePath(0.05, [0, 0, 0], [0, 0, 1]))
     return Case("one loop", (Circuit("c", 2.0),), (loop,))
 
 
@@ -367,10 +367,11 @@ def test_solve_flags_a_field_route_cut_short_by_its_budget(tmp_path, capsys) -> 
     from fieldenergy.caseio import write_case
     from fieldenergy.cli import main
 
-    write_case(loop_case(), tmp_path / "loop")
+    write_case(loop_case(wire=2.0e-4), tmp_path / "loop")
     args = ["solve", str(tmp_path / "loop"), "--preset", "fast", "--no-out", "--no-mechanics",
             "--json", str(tmp_path / "r.json")]
-    # 1e6 pairs leave the cubature its minimum of points, far short of the fast preset's 1e-2 on a thin loop
+    # 1e6 pairs leave the cubature its minimum of points, far short of the fast preset's 1e-2 on a
+    # loop of wire this thin (1/250 of the loop radius)
     assert main([*args, "--field-budget", "1e6"]) == 0
     out = capsys.readouterr().out
     assert "inconclusive" in out and "point budget" in out
@@ -429,3 +430,32 @@ def test_field_route_reports_its_progress() -> None:
     assert result.converged and len(shares) >= 2
     assert all(0.0 <= a <= b <= 1.0 for a, b in itertools.pairwise(shares))
     assert shares[-1] == 1.0
+
+
+def tilted_helix(turns: int, per_turn: int, wire: float) -> Filaments:
+    """A helix of radius 30 mm and pitch 9 mm, its axis tilted 20 degrees from z."""
+    t = 2.0 * np.pi * np.arange(turns * per_turn + 1) / per_turn
+    pts = np.column_stack([0.03 * np.cos(t), 0.03 * np.sin(t), 0.009 * t / (2.0 * np.pi)])
+    pts = pts @ _rotation_x(math.radians(20.0)).T
+    return Filaments.from_segments(pts[:-1], pts[1:], radii=wire)
+
+
+def test_block_summed_estimate_bounds_the_true_error(monkeypatch: pytest.MonkeyPatch) -> None:
+    """The route's error estimate sums the cells' differences with their signs over cubes of
+    eight core radii. At each tolerance it must still exceed the true error, taken against
+    the same integral to 1e-4 with every cell's difference counted by magnitude (the older,
+    cancellation-free estimate), and it must save points against that estimate."""
+    from fieldenergy.energy import cubature
+
+    fil = tilted_helix(3, 40, 1.5e-3)
+    by_block = {tol: field_inductance(fil, rel_tol=tol) for tol in (3e-3, 1e-3, 4e-4)}
+    monkeypatch.setattr(cubature, "block_sums", lambda centres, delta, block: delta)
+    reference = field_inductance(fil, rel_tol=1e-4, max_points=200_000_000)
+    by_cell = field_inductance(fil, rel_tol=1e-3)
+    assert reference.converged and by_cell.converged
+    exact = reference.matrix[0, 0]
+    for tol, result in by_block.items():
+        true = abs(result.matrix[0, 0] - exact) / exact
+        assert result.converged and result.relative_error <= tol
+        assert true <= result.relative_error + reference.relative_error, (tol, true, result.relative_error)
+    assert by_block[1e-3].n_points < by_cell.n_points

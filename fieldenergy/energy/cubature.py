@@ -12,7 +12,9 @@ error is taken as the difference over :data:`CHILD_ERROR_RATIO` (the derivation 
 there). Cells are marked for refinement
 by Doerfler's bulk criterion (the largest errors that together make up a fixed fraction of
 the total; W. Doerfler, SIAM J. Numer. Anal. 33, 1996) until the total estimated error is
-below the tolerance, a point budget is spent, or a depth limit is reached.
+below the tolerance, a point budget is spent, or a depth limit is reached. The total may be
+summed over blocks (cubes of a fixed grid) with signs inside each block, see
+:func:`block_sums`.
 
 Exterior. The outside of the cube of half-size H is six pyramids to infinity; the one beyond
 the face x = +H is mapped by x = H / s, y = x u, z = x v with (s, u, v) in (0, 1] x [-1, 1]^2,
@@ -140,6 +142,7 @@ def adaptive_octree(
     max_generations: int = 40,
     total_error: Callable[[Array, Array], float] | None = None,
     on_generation: Callable[[int, float], None] | None = None,
+    block: float | None = None,
 ) -> CubatureResult:
     """Integrate ``f`` over the union of the given cells, refining until the error is small.
 
@@ -165,6 +168,11 @@ def adaptive_octree(
         cells are still marked by ``cell_error``, which can only be larger.
     on_generation
         Called after each generation with the points spent so far and the total error.
+    block
+        Edge (m) of the cubes of a fixed grid that the error is summed over before it is
+        compared with ``tol``: the differences of the cells in one cube are added with their
+        signs, the cubes' sums by magnitude (see :func:`block_sums`). None: cell by cell.
+        Cells are marked for refinement by their own differences either way.
 
     Examples
     --------
@@ -184,7 +192,8 @@ def adaptive_octree(
         total = fine.sum(axis=0)
         delta = (fine - coarse) / CHILD_ERROR_RATIO
         err = cell_error(delta, total)
-        total_err = float(err.sum()) if total_error is None else total_error(delta, total)
+        blocked = block_sums(centres, delta, block)
+        total_err = float(cell_error(blocked, total).sum()) if total_error is None else total_error(blocked, total)
         converged = total_err <= tol
         if on_generation is not None:
             on_generation(n_points, total_err)
@@ -203,8 +212,36 @@ def adaptive_octree(
         coarse = np.concatenate([coarse[keep], new_coarse])
         kids = np.concatenate([kids[keep], new_kids])
     fine = kids.sum(axis=1)
-    error = np.abs(fine - coarse).sum(axis=0) / CHILD_ERROR_RATIO
+    error = np.abs(block_sums(centres, fine - coarse, block)).sum(axis=0) / CHILD_ERROR_RATIO
     return CubatureResult(fine.sum(axis=0), error, n_points, len(fine), converged)
+
+
+def block_sums(centres: Array, delta: Array, block: float | None) -> Array:
+    """Rows of ``delta`` (one per cell) summed over the cubes of edge ``block`` holding the
+    cells' centres, one row per occupied cube; ``delta`` itself when ``block`` is None.
+
+    Why sum with signs first. A kink of the integrand (a conductor's core surface) gives every
+    cell it cuts an error whose sign depends on where the surface crosses the cell, so the
+    errors of neighbouring cells partly cancel, in each rule alike. Summed cell by cell, the
+    estimate counts every one of them in full and overstates the error of a refined octree
+    several times over (5 to 25 times on the bundled cases). Over a cube of several cells the
+    same two rules, the cells' and their children's, are compared as two composite rules of
+    that cube, an estimate on the same footing as a cell's own; the cubes' sums are then
+    added by magnitude, so regions far apart do not cancel.
+
+    Examples
+    --------
+    >>> c = np.array([[0.1, 0.1, 0.1], [0.3, 0.1, 0.1], [1.5, 0.1, 0.1]])
+    >>> block_sums(c, np.array([[1.0], [-0.75], [0.5]]), 1.0).ravel().tolist()
+    [0.25, 0.5]
+    """
+    if block is None:
+        return delta
+    key = np.floor(centres / block).astype(np.int64)
+    _, which = np.unique(key, axis=0, return_inverse=True)
+    which = which.ravel()
+    n_blocks = int(which.max()) + 1 if len(which) else 0
+    return np.column_stack([np.bincount(which, weights=delta[:, k], minlength=n_blocks) for k in range(delta.shape[1])])
 
 
 def _kid_values(f: Integrand, centres: Array, halves: Array, n: int) -> Array:

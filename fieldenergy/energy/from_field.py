@@ -72,6 +72,10 @@ MUTUAL_SEED_CORE_RADII: float = 16.0
 #: Share of the point budget the mutual entries' octree may claim, against 1 for each circuit's own.
 MUTUAL_BUDGET_WEIGHT: float = 0.25
 
+#: The error estimate sums the cells' differences with their signs over cubes this many of the
+#: octree's smallest core radius across (see :func:`fieldenergy.energy.cubature.block_sums`).
+ERROR_BLOCK_CORE_RADII: float = 8.0
+
 #: Cells along each axis of the first uniform grid of the cube.
 FIRST_GRID: int = 4
 
@@ -346,6 +350,7 @@ def field_inductance(
             f, *_seeded(filaments, group, centre, half), _cell_error(scale), tol=NEAR_TOLERANCE_SHARE * rel_tol,
             n=CELL_GAUSS_POINTS, max_points=budget, total_error=_entry_error(scale),
             on_generation=_reporter(progress, k, len(groups), budget, NEAR_TOLERANCE_SHARE * rel_tol),
+            block=ERROR_BLOCK_CORE_RADII * float(filaments.radii[group.segments].min()),
         )
         value[group.entries], error[group.entries] = near.value, near.error
         pairs_left -= float(near.n_points) * n_seg
