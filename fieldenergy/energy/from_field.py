@@ -69,8 +69,9 @@ SEED_CORE_RADII: float = 4.0
 #: conductor B_p . B_q has a smaller kink than |B_p|^2 (the other circuit's field is smooth there).
 MUTUAL_SEED_CORE_RADII: float = 16.0
 
-#: Share of the point budget the mutual entries' octree may claim, against 1 for each circuit's own.
-MUTUAL_BUDGET_WEIGHT: float = 0.25
+#: The octrees spend the point budget in turn; each may use what is left less, for every octree
+#: after it, this many times the cost of that octree's seeded cells (their first generation).
+RESERVED_GENERATIONS: float = 4.0
 
 #: The error estimate sums the cells' differences with their signs over cubes this many of the
 #: octree's smallest core radius across (see :func:`fieldenergy.energy.cubature.block_sums`).
@@ -255,7 +256,6 @@ class _Group:
     circuits: tuple[int, ...]
     segments: NDArray[np.bool_]
     seed_core_radii: float
-    budget_weight: float
 
 
 def _groups(filaments: Filaments) -> list[_Group]:
@@ -267,11 +267,11 @@ def _groups(filaments: Filaments) -> list[_Group]:
     """
     n = filaments.n_circuits
     rows, cols = np.triu_indices(n)
-    out = [_Group(np.flatnonzero((rows == p) & (cols == p)), (p,), filaments.circuit == p, SEED_CORE_RADII, 1.0)
+    out = [_Group(np.flatnonzero((rows == p) & (cols == p)), (p,), filaments.circuit == p, SEED_CORE_RADII)
            for p in range(n)]
     if n > 1:
         out.append(_Group(np.flatnonzero(rows != cols), tuple(range(n)), np.ones(filaments.n_segments, bool),
-                          MUTUAL_SEED_CORE_RADII, MUTUAL_BUDGET_WEIGHT))
+                          MUTUAL_SEED_CORE_RADII))
     return [g for g in out if g.segments.any()]
 
 
@@ -329,11 +329,14 @@ def field_inductance(
     groups = _groups(filaments)
     value, error = np.zeros(len(rows)), np.zeros(len(rows))
     pairs_left = float(max_points) * filaments.n_segments
+    seeds = [_seeded(filaments, group, centre, half) for group in groups]
+    # a first generation evaluates every seeded cell's rule and its eight children's
+    first_cost = [9.0 * CELL_GAUSS_POINTS**3 * len(cells[1]) * int(g.segments.sum()) for cells, g in zip(seeds, groups)]
     evaluations, n_cells, converged = 0, 0, True
     for k, group in enumerate(groups):
         n_seg = int(group.segments.sum())
-        weights_left = sum(g.budget_weight for g in groups[k:])
-        budget = int(pairs_left * group.budget_weight / weights_left / n_seg)
+        reserve = RESERVED_GENERATIONS * sum(first_cost[k + 1 :])
+        budget = int(max(pairs_left - reserve, pairs_left / (len(groups) - k)) / n_seg)
         entries = (rows[group.entries], cols[group.entries])
         f, _, _ = _density(filaments, entries, fields)
         # scale of each entry: sqrt(L_pp L_qq), the diagonal from its own octree (it runs first)
@@ -347,7 +350,7 @@ def field_inductance(
             return np.where(is_diag, np.abs(total + own), fixed)
 
         near = adaptive_octree(
-            f, *_seeded(filaments, group, centre, half), _cell_error(scale), tol=NEAR_TOLERANCE_SHARE * rel_tol,
+            f, *seeds[k], _cell_error(scale), tol=NEAR_TOLERANCE_SHARE * rel_tol,
             n=CELL_GAUSS_POINTS, max_points=budget, total_error=_entry_error(scale),
             on_generation=_reporter(progress, k, len(groups), budget, NEAR_TOLERANCE_SHARE * rel_tol),
             block=ERROR_BLOCK_CORE_RADII * float(filaments.radii[group.segments].min()),
