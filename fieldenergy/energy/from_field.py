@@ -23,7 +23,8 @@ Each diagonal entry L_pp gets an octree of its own, seeded towards circuit p's c
 and summing circuit p's segments alone: |B_p|^2 needs fine cells only at p's core surfaces.
 The mutual entries share one more octree over all circuits, seeded coarser (next to one
 conductor the other circuits' fields are smooth, so B_p . B_q has a smaller kink). On the
-two-circuit bundled cases this halved the route's time against one octree for all entries.
+two-circuit bundled cases this took 0.5 (wireless-link) and 0.75 (toroidal-set) of the time
+of one octree for all entries, at the same tolerance.
 """
 
 from __future__ import annotations
@@ -333,6 +334,7 @@ def field_inductance(
     # a first generation evaluates every seeded cell's rule and its eight children's
     first_cost = [9.0 * CELL_GAUSS_POINTS**3 * len(cells[1]) * int(g.segments.sum()) for cells, g in zip(seeds, groups)]
     evaluations, n_cells, converged = 0, 0, True
+    diag_of = {p: int(np.flatnonzero((rows == p) & (cols == p))[0]) for p in range(filaments.n_circuits)}
     for k, group in enumerate(groups):
         n_seg = int(group.segments.sum())
         reserve = RESERVED_GENERATIONS * sum(first_cost[k + 1 :])
@@ -340,7 +342,6 @@ def field_inductance(
         entries = (rows[group.entries], cols[group.entries])
         f, _, _ = _density(filaments, entries, fields)
         # scale of each entry: sqrt(L_pp L_qq), the diagonal from its own octree (it runs first)
-        diag_of = {int(p): int(np.flatnonzero((rows == p) & (cols == p))[0]) for p in range(filaments.n_circuits)}
         known = np.abs(value + tail_fine)
         fixed = np.sqrt(known[[diag_of[int(p)] for p in entries[0]]] * known[[diag_of[int(q)] for q in entries[1]]])
         own = tail_fine[group.entries]
