@@ -37,7 +37,6 @@ from fieldenergy.discretise import discretise
 from fieldenergy.fastfield import fast_field, has_fmm
 from fieldenergy.maps.evaluate import evaluate_map
 from fieldenergy.maps.exact_path import exact_elements, exact_field
-from fieldenergy.model.maps import PointsMap
 from fieldenergy.model import (
     Case,
     CirclePath,
@@ -46,6 +45,7 @@ from fieldenergy.model import (
     Discretisation,
     RoundSection,
 )
+from fieldenergy.model.maps import PointsMap
 
 RADIUS = 0.1
 PITCH = 0.004
@@ -80,9 +80,9 @@ def wire_distance(pts: np.ndarray, n_loops: int) -> np.ndarray:
     return np.hypot(rho - RADIUS, pts[:, 2] - z)
 
 
-def timed(run, *args):  # type: ignore[no-untyped-def]
+def timed(run, *args, **kwargs):  # type: ignore[no-untyped-def]
     t0 = time.perf_counter()
-    out = run(*args)
+    out = run(*args, **kwargs)
     return time.perf_counter() - t0, out
 
 
@@ -95,10 +95,10 @@ def crossover(rng: np.random.Generator) -> None:
         el = exact_elements(case, discretise(case))
         pts = targets(len(el.nodes), n_loops, rng)
         t_direct, _ = timed(exact_field, pts, el)
-        t_tree, _ = timed(lambda: fast_field(pts, el, engine="tree"))
+        t_tree, _ = timed(fast_field, pts, el, engine="tree")
         line = f"{len(el.nodes):>24d} {t_direct:10.3f} {t_tree:8.3f} {t_tree / t_direct:12.3f}"
         if fmm:
-            t_fmm, _ = timed(lambda: fast_field(pts, el, engine="fmm"))
+            t_fmm, _ = timed(fast_field, pts, el, engine="fmm")
             line += f" {t_fmm:7.3f} {t_fmm / t_direct:11.3f}"
         print(line)
         if found is None and t_tree < t_direct:

@@ -11,6 +11,8 @@ import numpy as np
 from numpy.typing import NDArray
 from scipy import integrate
 
+Array = NDArray[np.float64]
+
 # ---------------------------------------------------------------------------------------
 # Biot-Savart twins of fieldenergy.kernels._biot_savart
 #

@@ -140,7 +140,7 @@ def test_row_sum_path_matches_pair_path() -> None:
     wires = Filaments.from_segments(starts, ends, radii=1e-3, filament=chain)
     dense = partial_inductances(wires)
     t = (ends - starts) / np.linalg.norm(ends - starts, axis=1)[:, None]
-    piece, arc, loop = wires.chain_pieces()
+    piece, arc, _loop = wires.chain_pieces()
     half = 0.5 * np.linalg.norm(ends - starts, axis=1)
     n_soft = 0
     for i, j in zip(*np.triu_indices(40, 1)):

@@ -12,7 +12,6 @@ from dataclasses import replace
 import numpy as np
 import pytest
 
-from fieldenergy.constants import MU0
 from fieldenergy.model import (
     Case,
     CirclePath,
