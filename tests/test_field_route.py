@@ -463,14 +463,23 @@ def test_field_route_reports_its_progress() -> None:
     assert shares[-1] == 1.0
 
 
-def test_block_summed_estimate_bounds_the_true_error(monkeypatch: pytest.MonkeyPatch) -> None:
+def fat_loop() -> Filaments:
+    """Invented: a 48-chord loop of radius 50 mm in wire of radius 10 mm. Eight core radii are
+    almost half its box, so the blocks are capped at 1/16 of the box: without the cap the
+    estimate was only 1.6 times the true error at 4e-4 (measured), with it 38 times."""
+    return filaments(polygon_loop(0.05, 48, wire=0.01), wire=0.01)
+
+
+@pytest.mark.parametrize("build", [lambda: tilted_helix(1.5e-3), fat_loop], ids=["tilted-helix", "fat-loop"])
+def test_block_summed_estimate_bounds_the_true_error(monkeypatch: pytest.MonkeyPatch, build) -> None:  # type: ignore[no-untyped-def]
     """The route's error estimate sums the cells' differences with their signs over cubes of
-    eight core radii. At each tolerance it must still exceed the true error, taken against
-    the same integral to 1e-4 with every cell's difference counted by magnitude (the older,
-    cancellation-free estimate), and it must save points against that estimate."""
+    eight core radii. At each tolerance it must still exceed twice the true error, taken
+    against the same integral to 1e-4 with every cell's difference counted by magnitude (the
+    older, cancellation-free estimate), and it must save points against that estimate.
+    Measured true/estimate: 0.08, 0.08, 0.05 (helix) and 0.28, 0.08, 0.03 (fat loop)."""
     from fieldenergy.energy import cubature
 
-    fil = tilted_helix(1.5e-3)
+    fil = build()
     by_block = {tol: field_inductance(fil, rel_tol=tol) for tol in (3e-3, 1e-3, 4e-4)}
     monkeypatch.setattr(cubature, "block_sums", lambda centres, delta, block: delta)
     reference = field_inductance(fil, rel_tol=1e-4, max_points=200_000_000)
@@ -480,7 +489,7 @@ def test_block_summed_estimate_bounds_the_true_error(monkeypatch: pytest.MonkeyP
     for tol, result in by_block.items():
         true = abs(result.matrix[0, 0] - exact) / exact
         assert result.converged and result.relative_error <= tol
-        assert true <= result.relative_error + reference.relative_error, (tol, true, result.relative_error)
+        assert true <= 0.5 * result.relative_error + reference.relative_error, (tol, true, result.relative_error)
     assert by_block[1e-3].n_points < by_cell.n_points
 
 
