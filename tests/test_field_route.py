@@ -7,6 +7,7 @@ from dataclasses import replace
 import itertools
 import json
 import math
+import warnings
 
 import numpy as np
 import pytest
@@ -16,7 +17,7 @@ from fieldenergy.energy.cubature import adaptive_octree, exterior_cube, exterior
 from fieldenergy.energy.from_field import _density, field_inductance
 from fieldenergy.energy.from_potential import grouped_inductance
 from fieldenergy.energy.route_check import ROUTE_GAP_TOLERANCE, route_gap
-from fieldenergy.errors import GeometryError
+from fieldenergy.errors import FieldEnergyWarning, GeometryError
 from fieldenergy.model import Case, Circuit, CirclePath, Coil, RoundSection
 from fieldenergy.model.filaments import Filaments
 from fieldenergy.model.options import SolveOptions
@@ -244,6 +245,17 @@ def test_zero_core_radius_is_refused() -> None:
     fil = Filaments.from_segments([[0, 0, 0], [1, 0, 0]], [[1, 0, 0], [0, 0, 0.5]], radii=0.0)
     with pytest.raises(GeometryError, match="core radius"):
         field_inductance(fil)
+
+
+def test_an_open_current_path_is_warned_of() -> None:
+    """Half a loop does not close: its field energy is not a partial inductance, so the field
+    route warns and names the loose end; the closed loop raises no warning."""
+    starts, ends, _ = polygon_loop(0.05, 24, wire=2e-3)
+    with pytest.warns(FieldEnergyWarning, match=r"circuit 0 has 2 loose end\(s\)"):
+        field_inductance(Filaments.from_segments(starts[:12], ends[:12], radii=2e-3), rel_tol=0.05)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", FieldEnergyWarning)
+        field_inductance(Filaments.from_segments(starts, ends, radii=2e-3), rel_tol=0.05)
 
 
 def test_route_gap_flag_and_hint() -> None:

@@ -31,6 +31,7 @@ from __future__ import annotations
 
 import math
 import time
+import warnings
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 
@@ -39,7 +40,7 @@ from numpy.typing import ArrayLike, NDArray
 
 from fieldenergy.constants import MU0
 from fieldenergy.energy.cubature import adaptive_octree, exterior_cube, seeded_cells
-from fieldenergy.errors import GeometryError
+from fieldenergy.errors import FieldEnergyWarning, GeometryError
 from fieldenergy.fastfield import SegmentTreeSum
 from fieldenergy.kernels._biot_savart import b_from_segments
 from fieldenergy.model.filaments import Filaments
@@ -323,6 +324,7 @@ def field_inductance(
     2.00 uH
     """
     _check(filaments, rel_tol)
+    _warn_if_open(filaments)
     t0 = time.perf_counter()
     fields = _CircuitFields(filaments)
     f_all, rows, cols = _density(filaments, fields=fields)
@@ -433,6 +435,32 @@ def _packaged(
     rel = float(np.max(error / np.outer(d, d)))
     n_points, n_cells, converged = counts
     return FieldInductance(matrix, error, full(tail[0]), rel, n_points, n_cells, converged, seconds)
+
+
+def _warn_if_open(filaments: Filaments) -> None:
+    """Warn when some circuit's current does not flow in closed loops.
+
+    The field energy of an open current path is not its partial inductance (the current
+    would pile up at the loose ends), so the two routes then measure different things.
+    A node is loose when the weights of the segments ending there and starting there do
+    not cancel; nodes are matched exactly, as discretised chains join.
+    """
+    nodes = np.concatenate([filaments.ends, filaments.starts])
+    flow = np.concatenate([filaments.weights, -filaments.weights])
+    keys = np.column_stack([nodes, np.tile(filaments.circuit, 2)])
+    _, which = np.unique(keys, axis=0, return_inverse=True)
+    net = np.bincount(which.ravel(), weights=flow)
+    loose = np.flatnonzero(np.abs(net) > 1e-9 * float(np.abs(filaments.weights).max()))
+    if loose.size:
+        first = int(np.flatnonzero(which.ravel() == loose[0])[0])
+        x, y, z = nodes[first]
+        warnings.warn(
+            f"field route: circuit {int(keys[first, 3])} has {loose.size} loose end(s) (for example at "
+            f"({x:.6g}, {y:.6g}, {z:.6g}) m): its current does not flow in closed loops, so the field energy "
+            "differs from the A.J route's partial inductance",
+            FieldEnergyWarning,
+            stacklevel=3,
+        )
 
 
 def _check(filaments: Filaments, rel_tol: float) -> None:
