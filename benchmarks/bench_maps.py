@@ -80,6 +80,10 @@ def wire_distance(pts: np.ndarray, n_loops: int) -> np.ndarray:
     return np.hypot(rho - RADIUS, pts[:, 2] - z)
 
 
+def _zone(value: float | None) -> str:
+    return "(no sampled point)" if value is None else f"{value:.1e}"
+
+
 def timed(run, *args, **kwargs):  # type: ignore[no-untyped-def]
     t0 = time.perf_counter()
     out = run(*args, **kwargs)
@@ -126,7 +130,8 @@ def large_map(n_targets: int, n_loops: int, n_chords: int, engine: str, rng: np.
         f"{res.tree.sources} sources per element"
     print(f"\n{n_targets} targets from {len(el.nodes)} elements ({engine}{how}): elements built in {t_el:.1f} s, "
           f"map with its error estimate in {t_fast:.1f} s, peak memory {peak:.2f} GiB; "
-          f"the map's estimated relative error {res.relative_error:.1e}")
+          f"the map's estimated relative error {_zone(res.relative_error_far)} farther than "
+          f"{res.near_distance * 1e3:.1f} mm from the wires, {_zone(res.relative_error_near)} closer in")
     print(f"direct on {SAMPLE} sampled targets: {t_direct:.1f} s, so the whole map directly would take about "
           f"{t_direct * n_targets / SAMPLE:.0f} s ({t_direct * n_targets / SAMPLE / t_fast:.0f} x the fast time)")
     print(f"largest relative error of B, fast vs direct: {err[far].max():.2e} farther than 5 mm from the wires "
