@@ -126,8 +126,7 @@ def large_map(n_targets: int, n_loops: int, n_chords: int, engine: str, rng: np.
     t_direct, (b_ref, _) = timed(lambda: exact_field(pts[sample], el))
     err = np.linalg.norm(b[sample] - b_ref, axis=1) / np.linalg.norm(b_ref, axis=1)
     far = wire_distance(pts[sample], n_loops) > NEAR
-    how = "" if res.tree is None else f", treecode order {res.tree.order}, theta {res.tree.theta}, " \
-        f"{res.tree.sources} sources per element"
+    how = "" if res.tree is None else f", {res.tree.describe()}"
     print(f"\n{n_targets} targets from {len(el.nodes)} elements ({engine}{how}): elements built in {t_el:.1f} s, "
           f"map with its error estimate in {t_fast:.1f} s, peak memory {peak:.2f} GiB; "
           f"the map's estimated relative error {_zone(res.relative_error_far)} farther than "

@@ -5,9 +5,11 @@ point "charges" I dr/ds w_i (a Gauss rule along its exact path). Their sum is ev
 one of two engines:
 
 ``tree`` (the default; no extra dependency)
-    the dual-tree treecode of :mod:`fieldenergy.kernels._treecode` (barycentric Lagrange
-    interpolation on Chebyshev grids), which returns A and B = curl A directly, with
-    :data:`TREE_SOURCES` point sources per element;
+    a fast multipole method on Chebyshev grids: the lattice FMM of
+    :mod:`fieldenergy.kernels._lattice` (compressed operators between cells of one lattice),
+    or for fields that nearly cancel the dual-tree treecode of
+    :mod:`fieldenergy.kernels._treecode` (see :data:`TREE_SETTINGS`), each returning A and
+    B = curl A, with :data:`TREE_SOURCES` point sources per element;
 ``fmm``
     fmm3dpy's Laplace fast multipole method (kernel 1/(4 pi r)), so A = mu0 * potential and
     B = curl A from the potential gradients, with :data:`FAST_ORDER` sources per element.
@@ -40,6 +42,7 @@ from fieldenergy.errors import FieldEnergyError
 from fieldenergy.fields import _check_finite_result, _points
 from fieldenergy.kernels._biot_savart import _segment_table
 from fieldenergy.kernels._fast_near import near_correction, near_segment_correction
+from fieldenergy.kernels._lattice import LatticeSources, lattice_field
 from fieldenergy.kernels._treecode import SourceTree, build_tree, tree_field
 from fieldenergy.maps.exact_path import (
     FAR_RATIO,
@@ -81,20 +84,39 @@ TREE_SOURCES: int = 4
 TREE_ORDER: int = 7
 TREE_THETA: float = 0.5
 
-#: Treecode settings (order, theta, point sources per element) tried in turn for a map whose
-#: estimated error is too large (see :mod:`fieldenergy.maps.evaluate`): the default, then one
-#: for fields that nearly cancel (higher order, then more sources). Both the treecode's error
-#: and the point-source rule's are fractions of the sum of the contributions' sizes, so where
-#: those cancel (just outside a long solenoid |B| is ~1e-3 of its peak) they grow relative to
-#: the local field. Measured on 3000 points 1 to 10 cm
-#: outside a solenoid of 1000 loops of 25 elements: (7, 0.5, 4) 6.7e-6; (9, 0.5, 4) 6.6e-7,
-#: the source rule's floor; (9, 0.5, 6) 7.3e-9 at 1.2x the time. On the 100-loop benchmark
-#: order 9 alone costs 1.7x, so a higher setting is used only when the first falls short.
-#: On 1e6 targets around a 1000-loop solenoid of 1e6 elements the pilot chose (9, 0.5, 4):
-#: largest error 4.7e-7 away from the wires (3.4e-5 with the default), the whole map with
-#: pilot and estimate in 429 s (the default's single pass: 129 s).
-TREE_SETTINGS: tuple[tuple[int, float, int], ...] = (
-    (TREE_ORDER, TREE_THETA, TREE_SOURCES), (9, 0.5, TREE_SOURCES), (9, 0.5, 6))
+#: The lattice FMM (:mod:`fieldenergy.kernels._lattice`): grid order, relative tolerance of
+#: its compressed operators, most sources and targets in a leaf cell, fewest points in a cell
+#: with a grid. Measured on 1e6 targets from the 1e5-element benchmark's 4e5 point sources
+#: (2 cores, far sum only; largest relative error of B on 300 sampled targets against direct
+#: summation of the same sources): order 9 (tolerance 1e-9, rank 266), leaves 64/64, grids
+#: from 32 points: 9.0 s, 6.8e-7; order 10 (rank 267): 9.5 s, 2.9e-7; with target leaves of
+#: 128 and grids from 48 points: 5.9 s, 2.9e-7. The dual treecode's default took 31.9 s.
+LATTICE_ORDER: int = 10
+LATTICE_TOLERANCE: float = 1.0e-9
+LATTICE_SOURCE_LEAF: int = 64
+LATTICE_TARGET_LEAF: int = 128
+LATTICE_MIN_GRID: int = 48
+
+#: A compressed grid-to-grid pair's cost in kernel evaluations per multiply-add of its
+#: k x k x 3 product (measured: batched products run about 15 times as many multiply-adds a
+#: second as the pair sums run kernel evaluations).
+LATTICE_PAIR_COST: float = 1.0 / 15.0
+
+#: Fast-sum settings (scheme, grid order, theta, point sources per element) tried in turn for a
+#: map whose estimated error is too large (see :mod:`fieldenergy.maps.evaluate`): the lattice
+#: FMM, then the dual treecode for fields that nearly cancel (higher order, then more sources).
+#: Both fast sums' errors and the point-source rule's are fractions of the sum of the
+#: contributions' sizes, so where those cancel (just outside a long solenoid |B| is ~1e-3 of
+#: its peak) they grow relative to the local field. The lattice's cells see each other at one
+#: cell's gap; the treecode's at theta = 0.5, a wider separation at which its sums are more
+#: accurate. Measured on 300 points around a solenoid of 1000 loops of 1000 elements (4e6
+#: point sources, against direct summation of the same sources): lattice order 10, largest
+#: error 2.5e-5 of the local |B| just outside the winding, where |B| is 4e-4 of its peak
+#: (order 12: 6e-6); median 4e-8. On 3000 points 1 to 10 cm outside a solenoid of 1000 loops
+#: of 25 elements, the treecode (7, 0.5, 4): 6.7e-6; (9, 0.5, 4) 6.6e-7, the source rule's
+#: floor; (9, 0.5, 6) 7.3e-9 at 1.2x the time.
+TREE_SETTINGS: tuple[tuple[str, int, float, int], ...] = (
+    ("lattice", LATTICE_ORDER, 0.0, TREE_SOURCES), ("dual", 9, 0.5, TREE_SOURCES), ("dual", 9, 0.5, 6))
 
 #: Target leaves (of :data:`TREE_TARGET_LEAF` points) drawn for a pilot of a large point set:
 #: whole leaves, so that the pilot's cells are as small as the full set's and its treecode
@@ -106,12 +128,12 @@ PILOT_LEAVES: int = 12
 #: gets large target cells, so most of its sum is direct and its error is far below a dense
 #: map's: measured 7e-13 against direct summation on 4096 of the 1e5-element benchmark's
 #: targets, in 4.7 s against 35 s for direct summation.
-ESTIMATE_TREE: tuple[int, float, int] = (11, 0.5, 8)
+ESTIMATE_TREE: tuple[str, int, float, int] = ("dual", 11, 0.5, 8)
 
 #: Treecode settings of the error estimate's lower-order evaluation, which measures the
 #: integration rule next to the conductors; its own summation error on a scattered sample is
 #: about 1e-11 (measured 5e-11 on the same 4096 targets).
-ESTIMATE_LOW_TREE: tuple[int, float, int] = (9, 0.5, 6)
+ESTIMATE_LOW_TREE: tuple[str, int, float, int] = ("dual", 9, 0.5, 6)
 
 TREE_SOURCE_LEAF: int = 200
 TREE_TARGET_LEAF: int = 200
@@ -138,12 +160,19 @@ Array = NDArray[np.float64]
 
 @dataclass(frozen=True, slots=True)
 class TreeSettings:
-    """Treecode settings: Chebyshev grid order, separation parameter theta and point sources
-    per element (see :data:`TREE_ORDER`, :data:`TREE_THETA`, :data:`TREE_SOURCES`)."""
+    """Fast-sum settings: scheme (``lattice`` FMM or ``dual`` treecode), Chebyshev grid order,
+    the treecode's separation parameter theta (unused by the lattice) and point sources per
+    element (see :data:`TREE_SETTINGS`)."""
 
-    order: int = TREE_ORDER
-    theta: float = TREE_THETA
+    scheme: str = "lattice"
+    order: int = LATTICE_ORDER
+    theta: float = 0.0
     sources: int = TREE_SOURCES
+
+    def describe(self) -> str:
+        """One line for reports, e.g. ``lattice FMM order 10, 4 sources per element``."""
+        how = "lattice FMM" if self.scheme == "lattice" else f"dual treecode theta {self.theta}"
+        return f"{how} order {self.order}, {self.sources} sources per element"
 
 
 class FastFieldUnavailable(FieldEnergyError):
@@ -160,29 +189,50 @@ def has_fmm() -> bool:
 
 
 class TreeSum:
-    """The treecode field of a set of elements, built once and evaluated at many point sets.
+    """The fast-sum field of a set of elements, built once and evaluated at many point sets.
 
-    ``order`` and ``theta`` are the treecode's grid order and separation parameter (the
-    defaults give about 1e-7 relative; lower orders are cheaper and less accurate).
+    ``scheme`` is ``lattice`` (the lattice FMM; the default) or ``dual`` (the treecode, with
+    separation parameter ``theta``), ``order`` the grid order (the defaults give about 1e-7
+    relative; lower orders are cheaper and less accurate), ``sources`` the point sources per element.
     """
 
-    def __init__(self, elements: ExactElements, order: int | None = None, theta: float | None = None,
-                 sources: int | None = None) -> None:
-        order = TREE_ORDER if order is None else order
-        self.settings = TreeSettings(order, TREE_THETA if theta is None else theta,
-                                     TREE_SOURCES if sources is None else sources)
+    def __init__(self, elements: ExactElements, scheme: str = "lattice", order: int | None = None,
+                 theta: float | None = None, sources: int | None = None) -> None:
+        if scheme not in ("lattice", "dual"):
+            raise ValueError(f"unknown fast-sum scheme {scheme!r}; known: lattice, dual")
+        order = (LATTICE_ORDER if scheme == "lattice" else TREE_ORDER) if order is None else order
+        theta = (0.0 if scheme == "lattice" else TREE_THETA) if theta is None else theta
+        sources = TREE_SOURCES if sources is None else sources
+        self.settings = TreeSettings(scheme, order, theta, sources)
         self.elements = elements
-        self.theta = TREE_THETA if theta is None else theta
-        self.src_pos, self.src_chg = point_sources(elements, TREE_SOURCES if sources is None else sources)
+        self.theta = theta
+        self.src_pos, self.src_chg = point_sources(elements, sources)
         self.grid = _element_grid(elements)
         self.rule = gauss_rule(elements.order)[:3]
-        self.tree = SourceTree(self.src_pos.reshape(-1, 3), self.src_chg.reshape(-1, 3), order, TREE_SOURCE_LEAF)
+        pos, chg = self.src_pos.reshape(-1, 3), self.src_chg.reshape(-1, 3)
+        if scheme == "lattice":
+            from fieldenergy.operator_cache import lattice_operators
+
+            ops = lattice_operators(order, LATTICE_TOLERANCE)
+            self.lattice: LatticeSources | None = LatticeSources(pos, chg, order, ops, LATTICE_SOURCE_LEAF,
+                                                                 LATTICE_MIN_GRID)
+        else:
+            self.lattice = None
+            self.tree = SourceTree(pos, chg, order, TREE_SOURCE_LEAF)
+
+    def far(self, points: Array, fields: str) -> Array:
+        """The point sources' B and A (6, m), without mu0 / (4 pi), at points (m, 3)."""
+        if self.lattice is not None:
+            k = self.lattice.u.shape[1]
+            return lattice_field(points, self.lattice, LATTICE_TARGET_LEAF, LATTICE_MIN_GRID,
+                                 3.0 * k * k * LATTICE_PAIR_COST, fields)
+        return tree_field(points, self.tree, self.theta, TREE_TARGET_LEAF, fields)
 
     def __call__(self, points: Array, b: Array, a: Array, max_subdivisions: int = MAX_SUBDIVISIONS,
                  potential: bool = True) -> None:
         """Write B (T) and A (T m) at points (m, 3), C-contiguous, into b and a (m, 3); without
         ``potential`` the far sum leaves A out (faster) and a holds only the near corrections."""
-        out = tree_field(points, self.tree, self.theta, TREE_TARGET_LEAF, "BA" if potential else "B")
+        out = self.far(points, "BA" if potential else "B")
         b[:] = MU0_OVER_4PI * out[:3].T
         a[:] = MU0_OVER_4PI * out[3:].T
         el = self.elements
@@ -256,10 +306,11 @@ def fast_field(
     pts = _points(points)
     el = elements
     b = np.empty((len(pts), 3))
-    a = np.empty((len(pts), 3))
     if engine == "tree":
+        a = np.empty((len(pts), 3)) if potential else np.empty((0, 3))
         if tree is None:
-            tree = TreeSum(el) if settings is None else TreeSum(el, settings.order, settings.theta, settings.sources)
+            tree = TreeSum(el) if settings is None else TreeSum(el, settings.scheme, settings.order, settings.theta,
+                                                                 settings.sources)
         # Chunks of spatially sorted targets (the octree's depth-first order), so that each
         # chunk is compact: random chunks of a large map each span the whole volume and
         # measured 35 % slower in chunks of 2.5e5 than in one call.
@@ -270,11 +321,13 @@ def fast_field(
             b_part, a_part = np.empty((len(idx), 3)), np.empty((len(idx), 3))
             tree(np.ascontiguousarray(pts[idx]), b_part, a_part, max_subdivisions, potential)
             b[idx] = b_part
-            a[idx] = a_part
+            if potential:
+                a[idx] = a_part
             if progress is not None:
                 progress(i1)
         _check_finite_result(b, pts)
         return b, a if potential else None
+    a = np.empty((len(pts), 3))
     try:
         import fmm3dpy
     except ImportError:

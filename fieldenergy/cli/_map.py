@@ -85,7 +85,7 @@ def _run_maps(args: argparse.Namespace) -> int:
     files = export_maps(out_dir, results, discretise(case).filaments, case.currents)
     for res in results:
         mag = np.linalg.norm(res.b, axis=1)
-        how = res.method if res.tree is None else f"treecode order {res.tree.order}, theta {res.tree.theta}"
+        how = res.method if res.tree is None else res.tree.describe()
         print(f"map {res.spec.name!r} ({res.spec.kind}, {len(res.points)} points, {how}): |B| from {mag.min():.6e} T "
               f"to {mag.max():.6e} T; estimated relative error of B {res.relative_error:.1e} (on a sample{_split(res)})")
     print(f"{len(files)} files written to {out_dir}")

@@ -48,15 +48,22 @@ FAST_MIN_PAIRS: float = 1.0e8
 #: the treecode and ``fmm`` the fast multipole method of fmm3dpy (an optional dependency).
 METHODS: tuple[str, ...] = ("auto", "direct", "fast", "fmm")
 
-#: A treecode map whose estimated relative error (largest on the sample) exceeds this is
-#: evaluated again with the next of :data:`fieldenergy.fastfield.TREE_SETTINGS`: the 1e-6
-#: that maps aim for (homogeneity in ppm).
+#: A fast map whose estimated summation error, relative to the local |B|, exceeds this at a
+#: sampled point farther from the conductors than :data:`NEAR_FRACTION_OF_SIZE` of their size
+#: (or :data:`TREE_RETRY_TOLERANCE_NEAR` at a nearer one) is evaluated again with the next of
+#: :data:`fieldenergy.fastfield.TREE_SETTINGS`: the 1e-6 that maps aim for away from the
+#: conductors (homogeneity in ppm) and the 1e-4 next to them, where the field varies over the
+#: section. The estimate is reported per zone, whichever setting passed.
 TREE_RETRY_TOLERANCE: float = 1.0e-6
+TREE_RETRY_TOLERANCE_NEAR: float = 1.0e-4
 
-#: Before a large treecode map, its settings are chosen on a pilot of whole target leaves:
-#: the first of :data:`fieldenergy.fastfield.TREE_SETTINGS` within this tolerance there (half
-#: the retry tolerance, a margin for the leaves the pilot misses). Maps of fewer than
-#: :data:`PILOT_MIN_LEAVES` leaves skip the pilot (a retry costs little there).
+#: Before a large map's first dual-treecode pass (after the lattice FMM fell short), the
+#: treecode's settings are chosen on a pilot of whole target leaves: the first of the rest of
+#: :data:`fieldenergy.fastfield.TREE_SETTINGS` within this tolerance there (half the retry
+#: tolerance, a margin for the leaves the pilot misses). Maps of fewer than
+#: :data:`PILOT_MIN_LEAVES` leaves skip the pilot (a retry costs little there). The lattice
+#: FMM gets no pilot: its cells are set by the lattice, so a pilot's sparse leaves would be cut
+#: less finely than the map's and summed more accurately.
 TREE_PILOT_TOLERANCE: float = 5.0e-7
 PILOT_MIN_LEAVES: int = 50
 
@@ -188,12 +195,13 @@ def evaluate_map(
     fast = _use_fast(method, len(points), elements)
     index = _estimate_index(len(points))
     low = exact_elements(case, model, ESTIMATE_ORDER)
+    near, distance = _near_conductors(points[index], model)
+    tolerance = np.where(near, TREE_RETRY_TOLERANCE_NEAR, TREE_RETRY_TOLERANCE)
     b, a, error, tree = _field_and_error(points, elements, low, index, f"map {spec.name!r}", progress, fast,
-                                         "A" in spec.quantities)
+                                         "A" in spec.quantities, tolerance)
     ref = np.asarray(reference_point(spec), dtype=np.float64)[None, :]
     b_ref = exact_field(ref, elements)[0][0]
     values = map_quantities(spec.quantities, b, a, b_ref)
-    near, distance = _near_conductors(points[index], model)
     return MapResult(spec, points, shape, b, a, values, b_ref, index, error, near, distance, fast or "direct", tree)
 
 
@@ -292,16 +300,18 @@ def _floor(mag: Array) -> float:
     return max(float(mag.max(initial=0.0)) * RELATIVE_FLOOR, np.finfo(float).tiny)
 
 
-def _pilot_choice(points: Array, elements: ExactElements, check: TreeSum) -> tuple[int, TreeSum]:
-    """The first of :data:`fieldenergy.fastfield.TREE_SETTINGS` (index, and its treecode) whose
-    B on a pilot of whole target leaves (see :func:`fieldenergy.fastfield.pilot_points`) is
-    within :data:`TREE_PILOT_TOLERANCE` of the ``check`` treecode's; the last if none is."""
+def _pilot_choice(points: Array, elements: ExactElements, settings: tuple[tuple[str, int, float, int], ...]
+                  ) -> tuple[int, TreeSum]:
+    """The first of the dual-treecode ``settings`` (index, and its treecode) whose B on a pilot
+    of whole target leaves (see :func:`fieldenergy.fastfield.pilot_points`) is within
+    :data:`TREE_PILOT_TOLERANCE` of the :data:`fieldenergy.fastfield.ESTIMATE_TREE` treecode's;
+    the last if none is."""
     from fieldenergy.fastfield import fast_field, pilot_points
 
     pts = np.ascontiguousarray(points[pilot_points(points)])
-    ref = fast_field(pts, elements, tree=check, potential=False)[0]
+    ref = fast_field(pts, elements, tree=TreeSum(elements, *ESTIMATE_TREE), potential=False)[0]
     mag = np.linalg.norm(ref, axis=1)
-    for k, setting in enumerate(TREE_SETTINGS):
+    for k, setting in enumerate(settings):
         tree = TreeSum(elements, *setting)
         b = fast_field(pts, elements, tree=tree, potential=False)[0]
         if np.max(np.linalg.norm(b - ref, axis=1) / np.maximum(mag, _floor(mag)), initial=0.0) <= TREE_PILOT_TOLERANCE:
@@ -311,43 +321,52 @@ def _pilot_choice(points: Array, elements: ExactElements, check: TreeSum) -> tup
 
 def _field_and_error(
     points: Array, elements: ExactElements, low: ExactElements, index: NDArray[np.int64], label: str,
-    progress: ProgressFactory | None, fast: str | None, potential: bool = True,
+    progress: ProgressFactory | None, fast: str | None, potential: bool = True, tolerance: Array | None = None,
 ) -> tuple[Array, Array | None, Array, TreeSettings | None]:
     """B and A at points (direct or ``fast``; A is None for ``fast`` without ``potential``),
-    the error estimate of B at ``index`` (T) and the treecode settings used.
+    the error estimate of B at ``index`` (T) and the fast-sum settings used.
 
     Direct: the estimate is the difference from a lower-order evaluation (``low``, half the
-    sub-chords). Fast: the sample is evaluated twice by the treecode, scattered samples being
-    summed far more accurately than a dense map: once with the map's elements and
+    sub-chords). Fast: the sample is evaluated twice by the dual treecode, scattered samples
+    being summed far more accurately than a dense map: once with the map's elements and
     :data:`fieldenergy.fastfield.ESTIMATE_TREE` (the summation error is the map's difference
     from it), once with ``low`` (the integration rule's error is the difference of the two);
-    the estimate is the sum of both parts. The treecode runs with the setting a pilot chose
-    (see :func:`_pilot_choice`; the first of :data:`fieldenergy.fastfield.TREE_SETTINGS` for a
-    small map), and again with the next one while its summation error on the sample exceeds
-    :data:`TREE_RETRY_TOLERANCE`. Each source tree is built once.
+    the estimate is the sum of both parts. The map is summed with the first of
+    :data:`fieldenergy.fastfield.TREE_SETTINGS` (the lattice FMM), and again with the next
+    while its summation error on the sample exceeds ``tolerance`` (relative, per sampled point;
+    default :data:`TREE_RETRY_TOLERANCE` everywhere). Before a large map's first treecode pass
+    a pilot skips the treecode settings that would fall short (see :func:`_pilot_choice`).
+    Each source tree is built once.
     """
     if fast is None:
         b, a = _field(points, elements, label, progress)
         b_low = _field(points[index], low, f"{label}, error estimate", progress, MAX_SUBDIVISIONS // 2)[0]
         return b, a, np.linalg.norm(b[index] - b_low, axis=1), None
+    tol = np.full(len(index), TREE_RETRY_TOLERANCE) if tolerance is None else tolerance
     sample = np.ascontiguousarray(points[index])
-    check = TreeSum(elements, *ESTIMATE_TREE)
-    b_ref = _field(sample, elements, f"{label}, error estimate", progress, fast="tree", tree=check,
-                   potential=False)[0]
-    first, chosen = 0, None
-    if fast == "tree" and len(points) > PILOT_MIN_LEAVES * TREE_TARGET_LEAF:
-        first, chosen = _pilot_choice(points, elements, check)
-    del check  # its source tree is the largest; free it before the map's own
+    b_ref = _field(sample, elements, f"{label}, error estimate", progress, fast="tree",
+                   tree=TreeSum(elements, *ESTIMATE_TREE), potential=False)[0]
     b_low = _field(sample, low, f"{label}, error estimate", progress, MAX_SUBDIVISIONS // 2, "tree",
                    TreeSum(low, *ESTIMATE_LOW_TREE), potential=False)[0]
-    tries = TREE_SETTINGS[first:] if fast == "tree" else (None,)
-    for k, setting in enumerate(tries):
-        tree = None if setting is None else chosen if k == 0 and chosen is not None else TreeSum(elements, *setting)
-        chosen = None
-        name = label if k == 0 else f"{label}, treecode order {setting[0]}"  # type: ignore[index]
+    tries: tuple[tuple[str, int, float, int] | None, ...] = TREE_SETTINGS if fast == "tree" else (None,)
+    k, piloted = 0, False
+    while True:
+        setting = tries[k]
+        tree = None
+        if setting is not None:
+            if setting[0] == "dual" and not piloted and len(points) > PILOT_MIN_LEAVES * TREE_TARGET_LEAF:
+                piloted = True
+                rest = tuple(t for t in tries[k:] if t is not None)
+                skip, tree = _pilot_choice(points, elements, rest)
+                k += skip
+                setting = tries[k]
+            tree = TreeSum(elements, *setting) if tree is None else tree  # type: ignore[misc]
+        name = label if k == 0 else f"{label}, {tree.settings.describe()}"  # type: ignore[union-attr]
         b, a = _field(points, elements, name, progress, fast=fast, tree=tree, potential=potential)
         summed = np.linalg.norm(b[index] - b_ref, axis=1)
-        if np.max(summed / np.maximum(np.linalg.norm(b_ref, axis=1), _floor(np.linalg.norm(b, axis=1))),
-                  initial=0.0) <= TREE_RETRY_TOLERANCE:
+        scale = np.maximum(np.linalg.norm(b_ref, axis=1), _floor(np.linalg.norm(b, axis=1)))
+        if k == len(tries) - 1 or np.all(summed / scale <= tol):
             break
+        k += 1
+        del tree  # free the last source tree before the next is built
     return b, a, summed + np.linalg.norm(b_ref - b_low, axis=1), None if tree is None else tree.settings

@@ -158,7 +158,9 @@ def _settings(res: MapResult) -> dict[str, object]:
     """How the map's field was summed (and, for the treecode, its checked settings)."""
     out: dict[str, object] = {"method": res.method}
     if res.tree is not None:
-        out.update(tree_order=res.tree.order, tree_theta=res.tree.theta, tree_sources_per_element=res.tree.sources)
+        out.update(fast_scheme=res.tree.scheme, grid_order=res.tree.order, sources_per_element=res.tree.sources)
+        if res.tree.scheme == "dual":
+            out.update(tree_theta=res.tree.theta)
     return out
 
 
