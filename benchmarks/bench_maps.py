@@ -1,4 +1,4 @@
-"""Field maps at scale: fast summation (treecode, and fmm3dpy if installed) against direct.
+"""Field maps at scale: fast summation (lattice FMM, and fmm3dpy if installed) against direct.
 
 Run from the repository root::
 
@@ -12,8 +12,9 @@ The conductors are a stack of ``--loops`` circular loops (radius 0.1 m, round 0.
 invented), each cut into about ``--chords`` curved elements, so the model has loops x chords
 elements. Prints:
 
-1. the crossover: direct, treecode and (if installed) fmm3dpy times for growing square
-   problems (targets = elements) and the first size where the treecode wins;
+1. the crossover: direct, fast (the default fast sum, the lattice FMM) and (if installed)
+   fmm3dpy times for growing square problems (targets = elements) and the first size where
+   the fast sum wins;
 2. the large map: ``--targets`` random points in a box around the stack (some next to the
    wires), evaluated by the ``--engine`` as ``fieldenergy map`` does (with its error estimate);
    its time, the peak resident memory, and the largest relative error against direct
@@ -92,7 +93,7 @@ def timed(run, *args, **kwargs):  # type: ignore[no-untyped-def]
 
 def crossover(rng: np.random.Generator) -> None:
     fmm = has_fmm()
-    print("size (targets = elements)   direct s   tree s   tree/direct" + ("   fmm s   fmm/direct" if fmm else ""))
+    print("size (targets = elements)   direct s   fast s   fast/direct" + ("   fmm s   fmm/direct" if fmm else ""))
     found = None
     for n_loops, n_chords in ((4, 250), (8, 500), (16, 1000), (32, 1000)):
         case = stack_case(n_loops, n_chords)
@@ -107,8 +108,8 @@ def crossover(rng: np.random.Generator) -> None:
         print(line)
         if found is None and t_tree < t_direct:
             found = len(el.nodes)
-    print(f"crossover: the treecode beats direct from about {found} targets x {found} elements "
-          f"({float(found) ** 2:.1e} pairs)" if found else "crossover: the treecode did not beat direct in this range")
+    print(f"crossover: the fast sum beats direct from about {found} targets x {found} elements "
+          f"({float(found) ** 2:.1e} pairs)" if found else "crossover: the fast sum did not beat direct in this range")
 
 
 def large_map(n_targets: int, n_loops: int, n_chords: int, engine: str, rng: np.random.Generator) -> None:

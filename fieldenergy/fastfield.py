@@ -91,6 +91,9 @@ TREE_THETA: float = 0.5
 #: summation of the same sources): order 9 (tolerance 1e-9, rank 266), leaves 64/64, grids
 #: from 32 points: 9.0 s, 6.8e-7; order 10 (rank 267): 9.5 s, 2.9e-7; with target leaves of
 #: 128 and grids from 48 points: 5.9 s, 2.9e-7. The dual treecode's default took 31.9 s.
+#: The whole map with its estimate (benchmarks/bench_maps.py): 14.5 s (the treecode: 39.8 s),
+#: largest error 5.5e-7 farther than 5 mm from the wires; 1e7 targets from 1e6 elements:
+#: 143.6 s (the treecode, at the order its pilot chose: 1224.8 s), peak memory 3.76 GiB.
 LATTICE_ORDER: int = 10
 LATTICE_TOLERANCE: float = 1.0e-9
 LATTICE_SOURCE_LEAF: int = 64
@@ -138,7 +141,7 @@ ESTIMATE_LOW_TREE: tuple[str, int, float, int] = ("dual", 9, 0.5, 6)
 TREE_SOURCE_LEAF: int = 200
 TREE_TARGET_LEAF: int = 200
 
-#: Targets per treecode call (spatially sorted, see fast_field): bounds the memory of the target
+#: Targets per fast-sum call (spatially sorted, see fast_field): bounds the memory of the target
 #: tree and its proxies and paces progress reports; measured 5 % slower than 1e6 per call.
 TREE_CHUNK: int = 250_000
 
@@ -287,9 +290,9 @@ def fast_field(
 ) -> tuple[Array, Array | None]:
     """B (T) and A (T m) at points (m, shape (m, 3)) by fast summation with exact near corrections.
 
-    Without ``potential`` the treecode sums B alone (about 0.8 of the time) and A is None.
+    Without ``potential`` the fast sum sums B alone (faster) and A is None.
 
-    ``engine`` is ``tree`` (the treecode, with ``settings``: the defaults if None; or ``tree``,
+    ``engine`` is ``tree`` (the built-in fast sums, with ``settings``: the lattice FMM's defaults if None; or ``tree``,
     one already built for these elements, which saves building its source tree again) or
     ``fmm`` (fmm3dpy, with requested precision eps); ``max_subdivisions`` is the exact-path
     rule's (see :func:`fieldenergy.maps.exact_path.exact_field`).

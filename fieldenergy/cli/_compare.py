@@ -50,8 +50,8 @@ def add_args(parser: argparse.ArgumentParser) -> None:
         "--method",
         choices=("auto", "direct", "fast", "fmm"),
         default="auto",
-        help="reference field: treecode on the exact paths for large meshes (auto), or always direct, "
-             "treecode (fast) or fast multipole (fmm, needs fmm3dpy)",
+        help="reference field: built-in fast sum on the exact paths for large meshes (auto), or always direct, "
+             "built-in fast sum (fast) or fmm3dpy's fast multipole method (fmm, needs fmm3dpy)",
     )
 
 

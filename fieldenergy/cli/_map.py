@@ -40,7 +40,7 @@ def add_args(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--out", metavar="FILE", help="output CSV for --points: x,y,z,Bx,By,Bz,Ax,Ay,Az (SI)")
     parser.add_argument("--out-dir", metavar="DIR", help="folder for the case's maps (default: CASE/maps)")
     parser.add_argument("--method", choices=("auto", "direct", "fast", "fmm"), default="auto",
-                        help="map summation: treecode (fast), fast multipole (fmm, needs fmm3dpy), direct, "
+                        help="map summation: built-in fast multipole method (fast), fmm3dpy's (fmm, needs fmm3dpy), direct, "
                              "or chosen by size (auto, default)")
 
 

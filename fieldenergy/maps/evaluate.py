@@ -38,14 +38,14 @@ ESTIMATE_ORDER: int = 6
 #: larger maps): summed directly, a point costs as much in the estimate as in the map.
 ESTIMATE_POINTS: int = 4096
 
-#: Automatic choice: the treecode is used when the number of target x element pairs exceeds
-#: this. Measured with benchmarks/bench_maps.py (2 cores): the treecode already wins at 1e6
-#: pairs (0.056 s against 0.083 s) and takes 0.035 of the direct time at 1e9; below 1e8 pairs
+#: Automatic choice: the fast sum is used when the number of target x element pairs exceeds
+#: this. Measured with benchmarks/bench_maps.py (2 cores): the lattice FMM already wins at 1e6
+#: pairs (0.053 s against 0.072 s) and takes 0.022 of the direct time at 1e9; below 1e8 pairs
 #: direct summation takes about a second and keeps its 1e-12 accuracy, so it is kept there.
 FAST_MIN_PAIRS: float = 1.0e8
 
 #: Ways to evaluate a map: ``auto`` chooses by size, ``direct`` sums every pair, ``fast`` uses
-#: the treecode and ``fmm`` the fast multipole method of fmm3dpy (an optional dependency).
+#: the built-in fast sums (:data:`fieldenergy.fastfield.TREE_SETTINGS`) and ``fmm`` the fast multipole method of fmm3dpy (an optional dependency).
 METHODS: tuple[str, ...] = ("auto", "direct", "fast", "fmm")
 
 #: A fast map whose estimated summation error, relative to the local |B|, exceeds this at a
@@ -94,7 +94,7 @@ class MapResult:
         Points along each grid axis (box: 3, plane: 2, line and points: 1).
     b, a
         B (T) and A (T m), shape (m, 3); A is None for a map summed fast that asks no A
-        (the treecode then sums B alone).
+        (the fast sum then sums B alone).
     values
         The map's quantities by name (see :data:`fieldenergy.model.maps.MAP_QUANTITIES`).
     b_reference
@@ -107,10 +107,11 @@ class MapResult:
     near_distance
         That distance (m).
     method
-        How the field was summed: ``direct``, ``tree`` or ``fmm``.
+        How the field was summed: ``direct``, ``tree`` (the built-in fast sums) or ``fmm``.
     tree
-        The treecode's settings (``tree`` only; the first of those tried whose estimated
-        error was within :data:`TREE_RETRY_TOLERANCE`, else the last).
+        The fast sum's settings (``tree`` only; the first of those tried whose estimated
+        error was within :data:`TREE_RETRY_TOLERANCE` far from the conductors and
+        :data:`TREE_RETRY_TOLERANCE_NEAR` near them, else the last).
     """
 
     spec: MapSpec
