@@ -94,17 +94,21 @@ def test_operators_are_the_compressed_offset_matrices(operators: dict[int, tuple
     assert table.shape[0] == (2 * OFFSET_REACH + 1) ** 3
 
 
-def test_basis_derivatives_are_exact_for_polynomials() -> None:
+@pytest.mark.parametrize("order", [7, 10])
+def test_basis_derivatives_are_exact_for_polynomials(order: int) -> None:
     """The interpolant of a polynomial of degree <= order is the polynomial, so its derivative
-    is exact, at nodes (the differentiation matrix's rows) and between them."""
-    nodes, weights = chebyshev_nodes(7)
-    coef = np.random.default_rng(2).normal(size=8)
+    is exact: on the nodes, between them, and within rounding distance of one (0.0 against
+    the node cos(pi / 2) = 6e-17 of order 10, where a map's regular grid of targets puts
+    points: the barycentric derivative formula lost every digit there)."""
+    nodes, weights = chebyshev_nodes(order)
+    coef = np.random.default_rng(2).normal(size=order + 1)
     f, df = np.polynomial.Polynomial(coef), np.polynomial.Polynomial(coef).deriv()
-    val, der = np.empty(8), np.empty(8)
-    for t in [*nodes, -0.93, 0.1, 0.77]:
+    val, der = np.empty(order + 1), np.empty(order + 1)
+    scale = np.abs(coef).sum() * order**2
+    for t in [*nodes, -0.93, 0.0, 0.1, 0.77, nodes[2] + 1e-13, nodes[order // 2] - 3e-16, -1.0 + 1e-15]:
         _basis_deriv(t, nodes, weights, val, der)
-        assert abs(val @ f(nodes) - f(t)) < 1e-12
-        assert abs(der @ f(nodes) - df(t)) < 1e-10 * np.abs(coef).sum() * 50
+        assert abs(val @ f(nodes) - f(t)) < 1e-13 * scale
+        assert abs(der @ f(nodes) - df(t)) < 1e-13 * scale, t
 
 
 def test_lattice_sum_converges_with_grid_order(operators: dict[int, tuple[np.ndarray, np.ndarray]]) -> None:
@@ -160,3 +164,18 @@ def test_b_alone_equals_the_rows_of_the_full_sum(operators: dict[int, tuple[np.n
     b_only = lattice_field(targets, src, 40, 24, 3 * 60**2 / 15, "B")
     np.testing.assert_allclose(b_only[:3], both[:3], rtol=0, atol=1e-13 * np.abs(both[:3]).max())
     assert not b_only[3:].any()
+
+
+def test_a_regular_plane_of_targets_through_cell_centres(operators: dict[int, tuple[np.ndarray, np.ndarray]]) -> None:
+    """A map's regular grid puts targets on the lattice's cell centres and faces, where the
+    interpolant's derivative must still be right (it once lost every digit of B there)."""
+    pos, chg, _ = _problem(8000, 10, 3)
+    src = LatticeSources(pos, chg, 8, operators[8], 40, 24)
+    centre = src.lo + 0.5 * src.width
+    u = centre[0] + np.linspace(-0.5, 0.5, 41) * src.width
+    x, y = np.meshgrid(u, u - centre[0] + centre[1])
+    targets = np.column_stack([x.ravel(), y.ravel(), np.full(x.size, centre[2])])
+    ref = point_elements_numpy(targets, pos, chg)
+    k = operators[8][0].shape[1]
+    err_b, err_a = _relative_error(lattice_field(targets, src, 40, 24, 3 * k * k / 15), ref)
+    assert err_b < 5e-6 and err_a < 5e-6, (err_b, err_a)

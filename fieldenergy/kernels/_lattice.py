@@ -378,37 +378,27 @@ def _grid_to_points_curl(vals, tx, ty, tz, i0, i1, box, c, nodes, weights, out):
 
 @njit(cache=True, inline="always")
 def _basis_deriv(t, nodes, weights, val, der):
-    """Barycentric Lagrange basis values and derivatives at t (Berrut & Trefethen 2004, sec. 9)."""
+    """Lagrange basis values and derivatives on ``nodes`` at t, in product form:
+    l_k(t) = w_k Q_k(t) / S with Q_k = prod_{j != k} (t - x_j) and S = sum_k w_k Q_k(t), a
+    constant, so l_k' = w_k Q_k' / S. Unlike the barycentric formula's derivative (which
+    cancels catastrophically within rounding distance of a node, e.g. at t = 0 against the
+    node cos(pi / 2) = 6e-17) the products stay accurate everywhere, on the nodes too."""
     n = nodes.shape[0]
-    hit = -1
-    for k in range(n):
-        if t == nodes[k]:
-            hit = k
-    if hit < 0:
-        s = 0.0
-        ds = 0.0
-        for k in range(n):
-            d = t - nodes[k]
-            val[k] = weights[k] / d
-            der[k] = -weights[k] / (d * d)
-            s += val[k]
-            ds += der[k]
-        for k in range(n):
-            v = val[k] / s
-            der[k] = (der[k] - v * ds) / s
-            val[k] = v
-        return
-    # on a node: basis is the unit vector; derivative row of the differentiation matrix
-    for k in range(n):
-        val[k] = 0.0
-        der[k] = 0.0
-    val[hit] = 1.0
     total = 0.0
     for k in range(n):
-        if k != hit:
-            der[k] = weights[k] / weights[hit] / (nodes[hit] - nodes[k])
-            total += der[k]
-    der[hit] = -total
+        v = 1.0
+        dv = 0.0
+        for j in range(n):
+            if j != k:
+                d = t - nodes[j]
+                dv = dv * d + v
+                v = v * d
+        val[k] = weights[k] * v
+        der[k] = weights[k] * dv
+        total += val[k]
+    for k in range(n):
+        val[k] /= total
+        der[k] /= total
 
 
 @njit(cache=True, parallel=True)
