@@ -12,7 +12,6 @@ from fieldenergy.kernels._lattice import (
     OFFSET_REACH,
     POINTS_TO_GRID,
     LatticeSources,
-    _basis_deriv,
     build_lattice_tree,
     lattice_field,
     m2l_operators,
@@ -21,7 +20,7 @@ from fieldenergy.kernels._lattice import (
     traverse_lattice,
     unit_grid,
 )
-from fieldenergy.kernels._treecode import chebyshev_nodes
+from fieldenergy.kernels._treecode import _basis_deriv, chebyshev_nodes
 from tests.reference import point_elements_numpy
 
 ORDER_TOL = {6: 1e-7, 8: 1e-9}

@@ -582,34 +582,139 @@ def _grid_to_points(vals, tx, ty, tz, i0, i1, box, c, nodes, weights, out):
             out[k, i] += acc[k]
 
 
+@njit(cache=True, fastmath=_PAIR_MATH)
+def _grid_to_points_curl(vals, tx, ty, tz, i0, i1, box, c, nodes, weights, out):
+    """out[:, i] += B = curl A and A (rows 0-2, 3-5) of cell c's grid values of A (3, P),
+    interpolated at points i0..i1 (the barycentric interpolant and its derivatives).
+
+    The tensor sums run axis by axis (z, then y, then x): about 6 P multiply-adds a point."""
+    n = nodes.shape[0]
+    lx = np.empty(n)
+    ly = np.empty(n)
+    lz = np.empty(n)
+    dlx = np.empty(n)
+    dly = np.empty(n)
+    dlz = np.empty(n)
+    v0, v1, v2 = vals[0], vals[1], vals[2]
+    for i in range(i0, i1):
+        _basis_deriv((tx[i] - box[c, 0]) / box[c, 3], nodes, weights, lx, dlx)
+        _basis_deriv((ty[i] - box[c, 1]) / box[c, 4], nodes, weights, ly, dly)
+        _basis_deriv((tz[i] - box[c, 2]) / box[c, 5], nodes, weights, lz, dlz)
+        # s[k][j]: component k; j = value, d/dx, d/dy, d/dz (in the unit coordinates)
+        s00 = s01 = s02 = s03 = s10 = s11 = s12 = s13 = s20 = s21 = s22 = s23 = 0.0
+        for a in range(n):
+            r0 = r1 = r2 = ry0 = ry1 = ry2 = rz0 = rz1 = rz2 = 0.0
+            for b in range(n):
+                g = (a * n + b) * n
+                t0 = t1 = t2 = u0 = u1 = u2 = 0.0
+                for d in range(n):
+                    w = lz[d]
+                    dw = dlz[d]
+                    t0 += w * v0[g + d]
+                    t1 += w * v1[g + d]
+                    t2 += w * v2[g + d]
+                    u0 += dw * v0[g + d]
+                    u1 += dw * v1[g + d]
+                    u2 += dw * v2[g + d]
+                wy = ly[b]
+                dwy = dly[b]
+                r0 += wy * t0
+                r1 += wy * t1
+                r2 += wy * t2
+                ry0 += dwy * t0
+                ry1 += dwy * t1
+                ry2 += dwy * t2
+                rz0 += wy * u0
+                rz1 += wy * u1
+                rz2 += wy * u2
+            wx = lx[a]
+            dwx = dlx[a]
+            s00 += wx * r0
+            s10 += wx * r1
+            s20 += wx * r2
+            s01 += dwx * r0
+            s11 += dwx * r1
+            s21 += dwx * r2
+            s02 += wx * ry0
+            s12 += wx * ry1
+            s22 += wx * ry2
+            s03 += wx * rz0
+            s13 += wx * rz1
+            s23 += wx * rz2
+        sx, sy, sz = 1.0 / box[c, 3], 1.0 / box[c, 4], 1.0 / box[c, 5]
+        out[0, i] += s22 * sy - s13 * sz
+        out[1, i] += s03 * sz - s21 * sx
+        out[2, i] += s11 * sx - s02 * sy
+        out[3, i] += s00
+        out[4, i] += s10
+        out[5, i] += s20
+
+
+@njit(cache=True, inline="always")
+def _basis_deriv(t, nodes, weights, val, der):
+    """Lagrange basis values and derivatives on ``nodes`` at t, in product form:
+    l_k(t) = w_k Q_k(t) / S with Q_k = prod_{j != k} (t - x_j) and S = sum_k w_k Q_k(t), a
+    constant, so l_k' = w_k Q_k' / S. Unlike the barycentric formula's derivative (which
+    cancels catastrophically within rounding distance of a node, e.g. at t = 0 against the
+    node cos(pi / 2) = 6e-17) the products stay accurate everywhere, on the nodes too."""
+    n = nodes.shape[0]
+    total = 0.0
+    for k in range(n):
+        v = 1.0
+        dv = 0.0
+        for j in range(n):
+            if j != k:
+                d = t - nodes[j]
+                dv = dv * d + v
+                v = v * d
+        val[k] = weights[k] * v
+        der[k] = weights[k] * dv
+        total += val[k]
+    for k in range(n):
+        val[k] /= total
+        der[k] /= total
+
+
 @njit(cache=True, parallel=True)
-def downward(values, tx, ty, tz, start, end, first, nch, level, box, proxy_id, nodes, weights, out):
+def downward(values, tx, ty, tz, start, end, first, nch, level, box, proxy_id, nodes, weights, out, curl):
     """Interpolate proxy-target fields down the tree and onto the target points (out (6, m)).
 
+    values (n_proxy_cells, k, P): B and A (k = 6, rows as in out), or with ``curl`` A alone
+    (k = 3), whose interpolant's curl gives B (see :func:`_grid_to_points_curl`).
     Shallowest level first: a cell passes its grid values to children with proxies (tensor
     interpolation, transposed) and interpolates them straight onto the points of children
     without; a leaf with proxies interpolates onto its own points.
     """
     max_level = level.max() if level.shape[0] else 0
+    n_rows = values.shape[1]
     for lev in range(max_level + 1):
         cells = np.nonzero((level == lev) & (proxy_id >= 0))[0]
         for ic in prange(cells.shape[0]):
             c = cells[ic]
             vals = values[proxy_id[c]]
             if nch[c] == 0:
-                _grid_to_points(vals, tx, ty, tz, start[c], end[c], box, c, nodes, weights, out)
+                _onto_points(curl, vals, tx, ty, tz, start[c], end[c], box, c, nodes, weights, out)
                 continue
             for ch in range(first[c], first[c] + nch[c]):
                 if proxy_id[ch] >= 0:
                     mat = _transfer(box, ch, c, nodes, weights)
-                    moved = np.zeros((vals.shape[1], 6))
+                    moved = np.zeros((vals.shape[1], n_rows))
                     _tensor_apply(mat, vals.T.copy(), moved, True)
                     dv = values[proxy_id[ch]]
                     for g in range(moved.shape[0]):
-                        for k in range(6):
+                        for k in range(n_rows):
                             dv[k, g] += moved[g, k]
                 else:
-                    _grid_to_points(vals, tx, ty, tz, start[ch], end[ch], box, c, nodes, weights, out)
+                    _onto_points(curl, vals, tx, ty, tz, start[ch], end[ch], box, c, nodes, weights, out)
+
+
+@njit(cache=True, inline="always")
+def _onto_points(curl, vals, tx, ty, tz, i0, i1, box, c, nodes, weights, out):
+    """:func:`_grid_to_points_curl` with ``curl``, else :func:`_grid_to_points`."""
+    if curl:
+        _grid_to_points_curl(vals, tx, ty, tz, i0, i1, box, c, nodes, weights, out)
+    else:
+        _grid_to_points(vals, tx, ty, tz, i0, i1, box, c, nodes, weights, out)
 
 
 def _csr(owner: np.ndarray, n_cells: int) -> tuple[np.ndarray, np.ndarray]:
@@ -671,7 +776,7 @@ def tree_field(targets: np.ndarray, sources: SourceTree, theta: float, leaf_size
                                   t_proxy, int(big.sum()), src.x, src.y, src.z, src.q[0], src.q[1], src.q[2],
                                   src.start, src.end, src.box, src.proxy, src.charges, src.nodes, mode,
                                   numba.get_num_threads())
-        downward(values, tx, ty, tz, start, end, first, nch, level, box, t_proxy, src.nodes, src.weights, out)
+        downward(values, tx, ty, tz, start, end, first, nch, level, box, t_proxy, src.nodes, src.weights, out, False)
     result = np.empty_like(out)
     result[:, perm] = out
     return result
