@@ -38,6 +38,7 @@ from numba import njit, prange
 
 from fieldenergy.kernels._treecode import (
     _PAIR_MATH,
+    _grow_int,
     _p2p_a,
     _points_to_grid,
     _tensor_apply,
@@ -267,10 +268,10 @@ def traverse_lattice(t_roots, t_box, t_level, t_ijk, t_count, t_first, t_nch, t_
         if kind >= 0:
             if n_it == cap:
                 cap *= 2
-                it_t = _grow1(it_t, cap)
-                it_s = _grow1(it_s, cap)
-                it_k = _grow1(it_k, cap)
-                it_o = _grow1(it_o, cap)
+                it_t = _grow_int(it_t, cap)
+                it_s = _grow_int(it_s, cap)
+                it_k = _grow_int(it_k, cap)
+                it_o = _grow_int(it_o, cap)
             it_t[n_it] = t
             it_s[n_it] = s
             it_k[n_it] = kind
@@ -300,13 +301,6 @@ def traverse_lattice(t_roots, t_box, t_level, t_ijk, t_count, t_first, t_nch, t_
                 stack[top, 1] = s_first[s] + b
                 top += 1
     return it_t[:n_it].copy(), it_s[:n_it].copy(), it_k[:n_it].copy(), it_o[:n_it].copy()
-
-
-@njit(cache=True)
-def _grow1(a, cap):
-    out = np.empty(cap, np.int64)
-    out[: a.shape[0]] = a
-    return out
 
 
 @njit(cache=True, parallel=True, fastmath=_PAIR_MATH, error_model="numpy")
